@@ -7,14 +7,17 @@ import (
 )
 
 // FSurvival returns P(F > f) for the F distribution with d1 and d2 degrees of
-// freedom, computed as the regularized incomplete beta function
+// freedom, computed as the complement of the regularized incomplete beta
+// function
 //
-//	P(F > f) = I_x(d2/2, d1/2),  x = d2 / (d2 + d1·f),
+//	P(F > f) = 1 − I_y(d1/2, d2/2) = I_x(d2/2, d1/2),
+//	y = d1·f/(d1·f + d2),  x = 1 − y = d2/(d1·f + d2),
 //
-// directly, without forming 1 − CDF, so that the relative accuracy holds far
-// into the upper tail (p down to about 1e-300) instead of flooring near 1e-16
-// as distuv.F.Survival does. x is formed without cancellation. f ≤ 0 gives 1;
-// f = +Inf gives 0.
+// by RegIncBetaComplement, which never forms 1 − CDF, so that the relative
+// accuracy holds far into the upper tail (p down to about 1e-300) instead of
+// flooring near 1e-16 as distuv.F.Survival does. x and y are each formed
+// by one division, neither as 1 minus the other. f ≤ 0 gives 1; f = +Inf
+// gives 0.
 func FSurvival(f, d1, d2 float64) float64 {
 	switch {
 	case math.IsNaN(f) || d1 <= 0 || d2 <= 0:
@@ -24,13 +27,15 @@ func FSurvival(f, d1, d2 float64) float64 {
 	case math.IsInf(f, 1):
 		return 0
 	}
-	x := d2 / (d2 + d1*f)
-	if x > 0.5 {
-		// Near 1 the complement 1 − x = d1·f/(d2 + d1·f) carries the digits;
-		// the symmetry I_x(a, b) = 1 − I_{1−x}(b, a) keeps them.
-		return 1 - mathext.RegIncBeta(d1/2, d2/2, d1*f/(d2+d1*f))
+	var x, y float64
+	if u := d1 * f; !math.IsInf(u, 1) {
+		t := u + d2
+		x, y = d2/t, u/t
+	} else { // d1·f overflows; x = q/(1+q) with q = d2/(d1·f) tiny
+		q := d2 / d1 / f
+		x, y = q/(1+q), 1/(1+q)
 	}
-	return mathext.RegIncBeta(d2/2, d1/2, x)
+	return RegIncBetaComplement(d1/2, d2/2, y, x)
 }
 
 // FQuantile returns the f with P(F ≤ f) = p for the F distribution with d1
@@ -39,7 +44,16 @@ func FQuantile(p, d1, d2 float64) float64 {
 	if p < 0 || p > 1 || d1 <= 0 || d2 <= 0 {
 		return math.NaN()
 	}
-	// P(F > f) = I_x(d2/2, d1/2) with x = d2/(d2 + d1 f): solve for x.
+	if p < 0.5 {
+		// Lower quantiles: P(F ≤ f) = I_y(d1/2, d2/2), y = d1 f/(d1 f + d2);
+		// solving for y keeps the digits that 1 − x would lose.
+		y := mathext.InvRegIncBeta(d1/2, d2/2, p)
+		if y >= 1 {
+			return math.Inf(1)
+		}
+		return d2 * y / (d1 * (1 - y))
+	}
+	// Upper quantiles: P(F > f) = I_x(d2/2, d1/2), x = d2/(d2 + d1 f).
 	x := mathext.InvRegIncBeta(d2/2, d1/2, 1-p)
 	if x <= 0 {
 		return math.Inf(1)
@@ -88,7 +102,7 @@ func NoncentralFSurvival(f, d1, d2, lambda float64) float64 {
 	mode := math.Floor(h)
 	lg, _ := math.Lgamma(mode + 1)
 	wMode := math.Exp(-h + mode*math.Log(h) - lg)
-	term := func(j, w float64) float64 { return w * mathext.RegIncBeta(d2/2, d1/2+j, x) }
+	term := func(j, w float64) float64 { return w * RegIncBeta(d2/2, d1/2+j, x) }
 	sum := term(mode, wMode)
 	// Upwards from the mode.
 	w := wMode
