@@ -131,7 +131,7 @@ func near(t *testing.T, what string, got *float64, want, rel float64) {
 		t.Errorf("%s: null, want %.10g", what, want)
 		return
 	}
-	if d := math.Abs(*got - want); d > rel*math.Abs(want)  {
+	if d := math.Abs(*got - want); d > rel*math.Abs(want) {
 		t.Errorf("%s = %.15g, R %.15g (relative error %.2g > %.0e)", what, *got, want, d/math.Abs(want), rel)
 	}
 }
