@@ -78,12 +78,12 @@ func (r Reference) Decimal() Decimal { return r.d }
 // stack buffer for temporary strings), and in the fallback for a text whose
 // coefficient is 2^128 or more.
 func (r Reference) Centre(text []byte) (v float64, exact bool, err error) {
-	return decCentre(&r, text)
+	return decCentre(r, text)
 }
 
 // CentreString is Centre for text held in a string.
 func (r Reference) CentreString(s string) (v float64, exact bool, err error) {
-	return decCentre(&r, s)
+	return decCentre(r, s)
 }
 
 // Uncentre returns reference + c as the float64 nearest the exact sum (ties
@@ -141,7 +141,7 @@ func decUlp(x float64) float64 {
 }
 
 // decCentre implements Centre and CentreString.
-func decCentre[T string | []byte](r *Reference, text T) (float64, bool, error) {
+func decCentre[T string | []byte](r Reference, text T) (float64, bool, error) {
 	var p decParts
 	if err := decParse(text, &p); err != nil {
 		return 0, false, decError(text, err)
@@ -225,7 +225,7 @@ func decSub(p *decParts, d *Decimal) (neg bool, hi, lo uint64, e int64, ok bool)
 }
 
 // decFallback returns float64(value) − float64(reference), inexact.
-func decFallback[T string | []byte](r *Reference, text T, p *decParts) (float64, bool, error) {
+func decFallback[T string | []byte](r Reference, text T, p *decParts) (float64, bool, error) {
 	f := decValueFloat(text, p) - r.hi
 	if math.IsInf(f, 0) {
 		return 0, false, decError(text, ErrOutOfRange)
