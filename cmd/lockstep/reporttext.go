@@ -159,8 +159,19 @@ func verdictText(r stats.Report, unit string) string {
 		return "No verdict: " + v.NotAvailable + "."
 	}
 	var s strings.Builder
-	test := fmt.Sprintf("%s = %s, p = %s", v.Test, sig(v.F, 4), pValue(v.P))
+	test := fmt.Sprintf("%s = %s, %s", v.Test, sig(v.F, 4), pIs(v.P))
 	switch {
+	case v.Differ && len(v.Divergent) > 3:
+		// Many groups apart: one short list instead of a sentence each.
+		fmt.Fprintf(&s, "Means differ (%s). %d of %d groups stand apart from the rest:", test, len(v.Divergent), len(r.Groups))
+		for i, d := range v.Divergent {
+			sep := ","
+			if i == 0 {
+				sep = ""
+			}
+			fmt.Fprintf(&s, "%s %s %s%s", sep, d.Name, f.signed(d.Shift), us)
+		}
+		s.WriteString("; see the analysis of means.")
 	case v.Differ && len(v.Divergent) > 0:
 		fmt.Fprintf(&s, "Means differ (%s).", test)
 		for _, d := range v.Divergent {
@@ -184,7 +195,7 @@ func verdictText(r stats.Report, unit string) string {
 		}
 	}
 	if sp := v.Spread; sp != nil {
-		fmt.Fprintf(&s, " Spreads differ (Brown–Forsythe p = %s): the SD of %s is %s × the pooled SD", pValue(sp.P), sp.Name, sig(sp.Ratio, 3))
+		fmt.Fprintf(&s, " Spreads differ (Brown–Forsythe %s): the SD of %s is %s × the pooled SD", pIs(sp.P), sp.Name, sig(sp.Ratio, 3))
 		if v.Test == "Welch F" {
 			s.WriteString(", so Welch's F decides.")
 		} else {
@@ -246,6 +257,15 @@ func pValue(p float64) string {
 		return fmt.Sprintf("%.2e", p)
 	}
 	return fmt.Sprintf("%.4f", p)
+}
+
+// pIs prints "p = 0.0123", or "p < 1e-300" below the smallest p printed.
+func pIs(p float64) string {
+	if t := pValue(p); strings.HasPrefix(t, "<") {
+		return "p " + t
+	} else {
+		return "p = " + t
+	}
 }
 
 func percent(c float64) string { return sig(100*c, 4) + "%" }
