@@ -29,7 +29,9 @@ type command interface {
 
 func commands(stdin io.Reader, stdout, stderr io.Writer) map[string]command {
 	return map[string]command{
-		"check": &CheckCommand{Stdin: stdin, Stdout: stdout, Stderr: stderr},
+		"check":    &CheckCommand{Stdin: stdin, Stdout: stdout, Stderr: stderr},
+		"run":      &RunCommand{Stdout: stdout, Stderr: stderr},
+		"simulate": &SimulateCommand{Stdout: stdout, Stderr: stderr},
 	}
 }
 
@@ -46,6 +48,10 @@ Usage:
 Commands:
   check     analyse a CSV file of measurements (one-way analysis of variance,
             Welch, spread and rank tests, pairs, analysis of means)
+  run       run the daemon: measurements from NATS, rolling windows, durable
+            state, an HTTP API and Prometheus metrics
+  simulate  publish the measurements of an invented plant to NATS, for trying
+            lockstep out, demonstrations and load tests
   version   print the version
   help      print this help, or "lockstep help <command>" for one command
 
