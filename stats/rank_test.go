@@ -1,10 +1,8 @@
 package stats
 
 import (
-	"errors"
 	"math"
 	"slices"
-	"strings"
 	"testing"
 )
 
@@ -42,16 +40,7 @@ func TestKruskalWallisNotAvailable(t *testing.T) {
 	}
 	for _, c := range cases {
 		got, err := KruskalWallis(c.samples)
-		if !errors.Is(err, ErrNotAvailable) {
-			t.Errorf("%s: err = %v, want one wrapping ErrNotAvailable", c.name, err)
-			continue
-		}
-		if !strings.HasPrefix(err.Error(), "Kruskal–Wallis test: not available: ") || !strings.Contains(err.Error(), c.want) {
-			t.Errorf("%s: err = %q, want it to say %q", c.name, err, c.want)
-		}
-		if got != (ChiSquareTest{}) {
-			t.Errorf("%s: result %+v with an error, want the zero ChiSquareTest", c.name, got)
-		}
+		checkUnavailable(t, c.name, "Kruskal–Wallis test", got, err, c.want)
 	}
 }
 

@@ -5,12 +5,14 @@ package stats
 
 import (
 	"encoding/csv"
+	"errors"
 	"maps"
 	"math"
 	"os"
 	"path/filepath"
 	"slices"
 	"strconv"
+	"strings"
 	"testing"
 )
 
@@ -189,5 +191,23 @@ func (e errorLog) report(t testing.TB) {
 	t.Helper()
 	for _, q := range slices.Sorted(maps.Keys(e.max)) {
 		t.Logf("max relative error against %s: %-22s %.3g", e.against, q, e.max[q])
+	}
+}
+
+// checkUnavailable checks a result that must not be available: err wraps
+// ErrNotAvailable, its text starts with "what: not available: " and says
+// want, and the result is the zero value. where names the case.
+func checkUnavailable[T comparable](t testing.TB, where, what string, got T, err error, want string) {
+	t.Helper()
+	if !errors.Is(err, ErrNotAvailable) {
+		t.Errorf("%s: err = %v, want one wrapping ErrNotAvailable", where, err)
+		return
+	}
+	if !strings.HasPrefix(err.Error(), what+": not available: ") || !strings.Contains(err.Error(), want) {
+		t.Errorf("%s: err = %q, want it to say %q", where, err, want)
+	}
+	var zero T
+	if got != zero {
+		t.Errorf("%s: result %+v with an error, want the zero value", where, got)
 	}
 }

@@ -1,10 +1,8 @@
 package stats
 
 import (
-	"errors"
 	"math"
 	"slices"
-	"strings"
 	"testing"
 )
 
@@ -71,16 +69,7 @@ func TestBartlettNotAvailable(t *testing.T) {
 	}
 	for _, c := range cases {
 		got, err := Bartlett(c.groups)
-		if !errors.Is(err, ErrNotAvailable) {
-			t.Errorf("%s: err = %v, want one wrapping ErrNotAvailable", c.name, err)
-			continue
-		}
-		if !strings.HasPrefix(err.Error(), "Bartlett test: not available: ") || !strings.Contains(err.Error(), c.want) {
-			t.Errorf("%s: err = %q, want it to say %q", c.name, err, c.want)
-		}
-		if got != (ChiSquareTest{}) {
-			t.Errorf("%s: result %+v with an error, want the zero ChiSquareTest", c.name, got)
-		}
+		checkUnavailable(t, c.name, "Bartlett test", got, err, c.want)
 	}
 }
 
@@ -118,16 +107,7 @@ func TestLeveneBrownForsytheNotAvailable(t *testing.T) {
 	for _, tt := range tests {
 		for _, c := range cases {
 			got, err := tt.fn(c.samples)
-			if !errors.Is(err, ErrNotAvailable) {
-				t.Errorf("%s, %s: err = %v, want one wrapping ErrNotAvailable", tt.name, c.name, err)
-				continue
-			}
-			if !strings.HasPrefix(err.Error(), tt.name+": not available: ") || !strings.Contains(err.Error(), c.want) {
-				t.Errorf("%s, %s: err = %q, want it to say %q", tt.name, c.name, err, c.want)
-			}
-			if got != (FTest{}) {
-				t.Errorf("%s, %s: result %+v with an error, want the zero FTest", tt.name, c.name, got)
-			}
+			checkUnavailable(t, tt.name+", "+c.name, tt.name, got, err, c.want)
 		}
 	}
 }

@@ -1,8 +1,6 @@
 package stats
 
 import (
-	"errors"
-	"strings"
 	"testing"
 )
 
@@ -55,16 +53,7 @@ func TestWelchNotAvailable(t *testing.T) {
 	}
 	for _, c := range cases {
 		got, err := Welch(c.groups)
-		if !errors.Is(err, ErrNotAvailable) {
-			t.Errorf("%s: err = %v, want one wrapping ErrNotAvailable", c.name, err)
-			continue
-		}
-		if !strings.HasPrefix(err.Error(), "Welch F: not available: ") || !strings.Contains(err.Error(), c.want) {
-			t.Errorf("%s: err = %q, want it to say %q", c.name, err, c.want)
-		}
-		if got != (FTest{}) {
-			t.Errorf("%s: result %+v with an error, want the zero FTest", c.name, got)
-		}
+		checkUnavailable(t, c.name, "Welch F", got, err, c.want)
 	}
 }
 
