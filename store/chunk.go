@@ -58,18 +58,22 @@ func slotStart(t int64) int64 {
 type rawRec struct {
 	t               int64
 	group, text, id string
+	gi              uint64 // appendChunk's index of group
 }
 
 // appendChunk encodes recs, which must be sorted by time, number 1 to
-// maxChunkRecords, lie in one raw slot, and be valid.
+// maxChunkRecords, lie in one raw slot, and be valid. It sets their gi.
 func appendChunk(dst []byte, recs []rawRec) []byte {
 	var groups []string
 	index := make(map[string]uint64, 8)
 	for i := range recs {
-		if _, ok := index[recs[i].group]; !ok {
-			index[recs[i].group] = uint64(len(groups))
+		gi, ok := index[recs[i].group]
+		if !ok {
+			gi = uint64(len(groups))
+			index[recs[i].group] = gi
 			groups = append(groups, recs[i].group)
 		}
+		recs[i].gi = gi
 	}
 	first, last := recs[0].t, recs[len(recs)-1].t
 	size := 1 + 3*binary.MaxVarintLen64
@@ -92,7 +96,7 @@ func appendChunk(dst []byte, recs []rawRec) []byte {
 		r := &recs[i]
 		dst = binary.AppendUvarint(dst, uint64(r.t-prev))
 		prev = r.t
-		dst = binary.AppendUvarint(dst, index[r.group])
+		dst = binary.AppendUvarint(dst, r.gi)
 		dst = appendBytes(dst, r.text)
 		dst = appendBytes(dst, r.id)
 	}

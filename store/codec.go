@@ -177,6 +177,19 @@ func checkName(b []byte) error {
 	return nil
 }
 
+// checkNameString is checkName for a string, without copying it.
+func checkNameString(s string) error {
+	switch {
+	case len(s) == 0:
+		return fmt.Errorf("empty name")
+	case len(s) > maxName:
+		return fmt.Errorf("name of %d bytes, more than %d", len(s), maxName)
+	case !utf8.ValidString(s):
+		return fmt.Errorf("name %q is not UTF-8", s)
+	}
+	return nil
+}
+
 func corrupt(kind, name string, err error) error {
 	return fmt.Errorf("decode %s %s: %w: %w", kind, name, ErrCorrupt, err)
 }

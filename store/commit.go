@@ -39,6 +39,12 @@ type Batch struct {
 	// skips the check.
 	Consumer string
 	Cursor   uint64
+
+	// Alerts are alert records, each replacing the stored record of its id
+	// (alerts.go); MonitorStates replace the stored monitor state of their
+	// characteristic. Both are opaque bytes to the store.
+	Alerts        []AlertRecord
+	MonitorStates []MonitorState
 }
 
 // Commit writes the batch in one read-write transaction, and so with one
@@ -65,6 +71,7 @@ type prepared struct {
 	writes   []*charWrites // sorted by characteristic name
 	consumer string
 	cursor   uint64
+	alerts   preparedAlerts
 }
 
 // charWrites are the puts for one characteristic.
@@ -72,6 +79,9 @@ type charWrites struct {
 	name    string
 	buckets []kv    // sorted by key
 	chunks  []chunk // sorted by start
+
+	raw  []rawRec // while preparing: its raw values
+	nraw int
 }
 
 type kv struct{ key, val []byte }
@@ -118,20 +128,38 @@ func prepare(b *Batch) (*prepared, error) {
 		w := of(bs.Characteristic)
 		w.buckets = append(w.buckets, kv{bucketKey(start, bs.Group), appendBucketState(nil, bs)})
 	}
-	raw := map[string][]rawRec{}
+	// Raw values: checked and counted by characteristic, then placed in
+	// one array, each characteristic's run in arrival order.
 	for i := range b.Raw {
 		r := &b.Raw[i]
-		t, err := checkRaw(r)
-		if err != nil {
+		if _, err := checkRaw(r); err != nil {
 			return nil, invalid("raw value %d (%q %q): %v", i, r.Characteristic, r.Group, err)
 		}
-		of(r.Characteristic)
-		raw[r.Characteristic] = append(raw[r.Characteristic], rawRec{t: t, group: r.Group, text: r.Text, id: r.ID})
+		of(r.Characteristic).nraw++
 	}
+	all, off := make([]rawRec, len(b.Raw)), 0
+	for _, w := range p.writes {
+		w.raw, off = all[off:off:off+w.nraw], off+w.nraw
+	}
+	var w *charWrites
+	for i := range b.Raw {
+		r := &b.Raw[i]
+		if w == nil || w.name != r.Characteristic {
+			w = byName[r.Characteristic]
+		}
+		t, _ := nanos(r.Time) // checked above
+		w.raw = append(w.raw, rawRec{t: t, group: r.Group, text: r.Text, id: r.ID})
+	}
+	alerts, err := prepareAlerts(b)
+	if err != nil {
+		return nil, err
+	}
+	p.alerts = alerts
 	slices.SortFunc(p.writes, func(a, b *charWrites) int { return cmp.Compare(a.name, b.name) })
 	for _, w := range p.writes {
 		slices.SortStableFunc(w.buckets, func(a, b kv) int { return bytes.Compare(a.key, b.key) })
-		w.chunks = cutChunks(raw[w.name])
+		w.chunks = cutChunks(w.raw)
+		w.raw = nil
 	}
 	return p, nil
 }
@@ -170,10 +198,10 @@ func checkCharacteristic(c *Characteristic) error {
 }
 
 func checkBucket(b *BucketState) (int64, error) {
-	if err := checkName([]byte(b.Characteristic)); err != nil {
+	if err := checkNameString(b.Characteristic); err != nil {
 		return 0, fmt.Errorf("characteristic: %v", err)
 	}
-	if err := checkName([]byte(b.Group)); err != nil {
+	if err := checkNameString(b.Group); err != nil {
 		return 0, fmt.Errorf("group: %v", err)
 	}
 	start, ok := nanos(b.Start)
@@ -192,10 +220,10 @@ func checkBucket(b *BucketState) (int64, error) {
 }
 
 func checkRaw(r *RawValue) (int64, error) {
-	if err := checkName([]byte(r.Characteristic)); err != nil {
+	if err := checkNameString(r.Characteristic); err != nil {
 		return 0, fmt.Errorf("characteristic: %v", err)
 	}
-	if err := checkName([]byte(r.Group)); err != nil {
+	if err := checkNameString(r.Group); err != nil {
 		return 0, fmt.Errorf("group: %v", err)
 	}
 	t, ok := nanos(r.Time)
@@ -255,6 +283,9 @@ func (p *prepared) apply(tx *bolt.Tx) error {
 		if err := w.apply(tx); err != nil {
 			return err
 		}
+	}
+	if err := p.alerts.apply(tx); err != nil {
+		return err
 	}
 	if p.cursor != 0 {
 		if err := cursors.Put([]byte(p.consumer), binary.BigEndian.AppendUint64(nil, p.cursor)); err != nil {

@@ -7,7 +7,9 @@
 // The core types are Store (Open, OpenReadOnly, Commit, the readers
 // Characteristics, Buckets, Raw and Cursor, Retain, Backup, Verify), Batch
 // (what one commit writes) and the records Characteristic, BucketState and
-// RawValue. The layout is described in schema.go, the record codecs in
+// RawValue; alert records and monitor states ride in the same batches as
+// opaque bytes (alerts.go: AlertRecord, MonitorState, Alerts, MonitorState,
+// RetainAlerts), so the store knows no alert types. The layout is described in schema.go, the record codecs in
 // codec.go and chunk.go; each record kind carries its own version byte, and
 // the file its schema version.
 //

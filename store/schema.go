@@ -24,12 +24,17 @@ const SchemaVersion uint32 = 1
 //	raw/NAME/TIME SEQ               chunk of raw values (chunk.go); TIME = first
 //	                                value's time, SEQ = uint64 big-endian from
 //	                                the sub-bucket's NextSequence
+//	alerts/ID                       alert record (alerts.go); created by the
+//	                                first commit that holds one
+//	monitors/NAME                   monitor state (alerts.go); likewise
 const (
 	bucketMeta            = "meta"
 	bucketCharacteristics = "characteristics"
 	bucketCursors         = "cursors"
 	bucketBuckets         = "buckets"
 	bucketRaw             = "raw"
+	bucketAlerts          = "alerts"
+	bucketMonitors        = "monitors"
 
 	keyFormat   = "format"
 	keySchema   = "schema"
@@ -41,6 +46,10 @@ const (
 func topBuckets() []string {
 	return []string{bucketMeta, bucketCharacteristics, bucketCursors, bucketBuckets, bucketRaw}
 }
+
+// optionalBuckets are the top-level buckets a store may lack: those created
+// on first use (alerts.go).
+func optionalBuckets() []string { return []string{bucketAlerts, bucketMonitors} }
 
 // Limits on what a record may hold. Decoders refuse larger lengths, so a
 // corrupt length cannot make them allocate or read far.

@@ -94,7 +94,7 @@ func (s *Store) verify(tx *bolt.Tx) error {
 	}
 	top := topBuckets()
 	p.add(tx.ForEach(func(name []byte, _ *bolt.Bucket) error {
-		if !slices.Contains(top, string(name)) {
+		if !slices.Contains(top, string(name)) && !slices.Contains(optionalBuckets(), string(name)) {
 			p.add(fmt.Errorf("unknown top-level bucket %q", name))
 		}
 		return nil
@@ -107,6 +107,7 @@ func (s *Store) verify(tx *bolt.Tx) error {
 	if len(p.errs) > 0 {
 		return p.err()
 	}
+	p.add(verifyAlerts(tx))
 	p.add(tx.Bucket([]byte(bucketMeta)).ForEach(func(k, _ []byte) error {
 		if string(k) != keyFormat && string(k) != keySchema {
 			p.add(fmt.Errorf("unknown meta key %q", k))
