@@ -148,8 +148,8 @@ type JetStreamSource struct {
 	log    zerolog.Logger
 	h      *handoff[jsItem]
 
-	// Owned by the caller's goroutine (Fetch and Ack), guarded by ackMu
-	// against a reset.
+	// Shared by Fetch and Ack (which may run on two goroutines) and a
+	// reset, guarded by ackMu.
 	ackMu   sync.Mutex
 	unacked []jsItem
 
@@ -294,16 +294,21 @@ func (s *JetStreamSource) start(ctx context.Context) (jetstream.ConsumeContext, 
 		if broken {
 			return // after a gap: wait for the reset, the server resends
 		}
-		md, err := m.Metadata()
-		if err != nil {
-			s.consErrs.Add(1)
-			s.log.Error().Err(err).Str("subject", m.Subject()).Msg("message without JetStream metadata skipped")
-			return
+		md, ok := parseAckReply(m.Reply()) // no allocation, unlike m.Metadata
+		if !ok {
+			full, err := m.Metadata()
+			if err != nil {
+				s.consErrs.Add(1)
+				s.log.Error().Err(err).Str("subject", m.Subject()).Msg("message without JetStream metadata skipped")
+				return
+			}
+			md = ackMeta{delivered: full.NumDelivered, streamSeq: full.Sequence.Stream, consumerSeq: full.Sequence.Consumer,
+				stored: full.Timestamp, pending: full.NumPending}
 		}
-		if md.Sequence.Consumer != nextDelivery {
+		if md.consumerSeq != nextDelivery {
 			broken = true
-			s.log.Warn().Uint64("want_delivery", nextDelivery).Uint64("got_delivery", md.Sequence.Consumer).
-				Uint64("seq", md.Sequence.Stream).Msg("deliveries lost in transit: resetting the consumer")
+			s.log.Warn().Uint64("want_delivery", nextDelivery).Uint64("got_delivery", md.consumerSeq).
+				Uint64("seq", md.streamSeq).Msg("deliveries lost in transit: resetting the consumer")
 			select {
 			case s.gap <- epoch:
 			default:
@@ -312,10 +317,10 @@ func (s *JetStreamSource) start(ctx context.Context) (jetstream.ConsumeContext, 
 		}
 		nextDelivery++
 		s.h.put(jsItem{
-			msg:       Msg{Subject: m.Subject(), Data: m.Data(), Seq: md.Sequence.Stream, Stored: md.Timestamp, Arrived: s.opt.Now()},
+			msg:       Msg{Subject: m.Subject(), Data: m.Data(), Seq: md.streamSeq, Stored: md.stored, Arrived: s.opt.Now()},
 			raw:       m,
-			delivered: md.NumDelivered,
-			pending:   md.NumPending,
+			delivered: md.delivered,
+			pending:   md.pending,
 			epoch:     epoch,
 		}, epoch)
 	}

@@ -25,8 +25,10 @@ type Msg struct {
 	Arrived time.Time
 }
 
-// Source delivers messages in batches. Fetch and Ack are called from one
-// goroutine; Stats (and JetStreamSource.Lag) may be called from any.
+// Source delivers messages in batches. Fetch is called from one goroutine
+// at a time, and so is Ack, which may be another goroutine than Fetch's (a
+// caller that decodes on one goroutine and commits on another); Stats (and
+// JetStreamSource.Lag) may be called from any.
 //
 // The loop a caller runs is: Fetch a batch, apply every message whose Seq is
 // above the highest Seq applied so far (starting from the cursor stored with

@@ -198,12 +198,24 @@ func (t *SubjectTemplate) LabelNames() []string {
 // token differs, or the subject has an empty token. Match does not
 // allocate: the match holds views into subject.
 func (t *SubjectTemplate) Match(subject []byte) (m SubjectMatch, ok bool) {
+	if !t.match(subject, &m) {
+		return SubjectMatch{}, false
+	}
+	return m, true
+}
+
+// match is Match into *m, which it need not clear first: a SubjectMatch is
+// 376 bytes, and Validator.Check matches every message. On false, *m is
+// garbage. Labels of m beyond the template's are left as they were; they
+// are not visible through Labels or Label.
+func (t *SubjectTemplate) match(subject []byte, m *SubjectMatch) bool {
+	m.Characteristic, m.Group = nil, nil
 	rest := subject
 	last := len(t.tokens) - 1
 	for i, tt := range t.tokens {
 		if tt.kind == tokenTail {
 			if !validTokens(rest) {
-				return SubjectMatch{}, false
+				return false
 			}
 			break
 		}
@@ -211,13 +223,13 @@ func (t *SubjectTemplate) Match(subject []byte) (m SubjectMatch, ok bool) {
 		if len(tok) == 0 || more != (i < last) {
 			// An empty token, or a subject longer or shorter than the
 			// template.
-			return SubjectMatch{}, false
+			return false
 		}
 		rest = after
 		switch tt.kind {
 		case tokenLiteral:
 			if string(tok) != tt.text {
-				return SubjectMatch{}, false
+				return false
 			}
 		case tokenCharacteristic:
 			m.Characteristic = tok
@@ -228,7 +240,7 @@ func (t *SubjectTemplate) Match(subject []byte) (m SubjectMatch, ok bool) {
 		}
 	}
 	m.n = uint8(len(t.labels))
-	return m, true
+	return true
 }
 
 // validTokens reports whether b is one or more non-empty dot-separated

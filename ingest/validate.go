@@ -23,6 +23,19 @@ const (
 // MaxNameLen is the longest characteristic or group name accepted, in bytes.
 const MaxNameLen = 128
 
+// Limits of what lockstep keeps of a measurement (the store's raw values and
+// the windows' event times); Check rejects a measurement beyond them, so
+// that it is counted with its reason and never fails a store commit.
+const (
+	// MaxValueText is the longest decimal text of a value, in bytes.
+	MaxValueText = 256
+	// MaxIDLen is the longest id, in bytes.
+	MaxIDLen = 255
+	// maxEventNs bounds event times: ±2⁶² ns around the Unix epoch
+	// (1823-11-12 to 2116-02-20), the range of window.Window.
+	maxEventNs = 1 << 62
+)
+
 // UnknownPolicy says what happens to measurements of a characteristic that
 // the configuration does not name.
 type UnknownPolicy uint8
@@ -97,7 +110,8 @@ type ValidatorConfig struct {
 	// IDMemory is how many of the most recent ids each characteristic
 	// remembers to reject duplicates (first in, first out); 0 means
 	// DefaultIDMemory (100 000), negative turns duplicate detection off.
-	// Memory is about 40 bytes per id, allocated as ids arrive.
+	// Memory is 24 to 40 bytes per id remembered (see idMemory), grown as
+	// ids arrive.
 	IDMemory int
 	// MaxCharacteristics bounds the unknown characteristics accepted under
 	// UnknownAccept, so that stray subjects cannot grow memory without
@@ -154,6 +168,10 @@ type Validator struct {
 	added     int // unknown characteristics accepted so far
 	counters  *Counters
 	seed      maphash.Seed
+	last      *charState   // the characteristic of the last Check, if known
+	match     SubjectMatch // Check's match of the subject, reused
+	pmatch    SubjectMatch // Prefetch's
+	prefetch  []*uint64    // places noted by Prefetch, at most maxPrefetch
 }
 
 // charState is what a Validator knows of one characteristic.
@@ -163,6 +181,8 @@ type charState struct {
 	ref    stats.Reference
 	hasRef bool
 	ids    idMemory
+
+	prefetched uint64 // see Prefetch
 }
 
 // NewValidator returns a Validator for cfg, or an error wrapping ErrOption
@@ -171,6 +191,7 @@ func NewValidator(cfg ValidatorConfig) (*Validator, error) {
 	v := &Validator{
 		tmpl:      cfg.Template,
 		chars:     make(map[string]*charState, len(cfg.Characteristics)),
+		prefetch:  make([]*uint64, 0, maxPrefetch),
 		unknown:   cfg.Unknown,
 		maxFuture: orDefault(cfg.MaxFuture, DefaultMaxFuture),
 		maxAge:    orDefault(cfg.MaxAge, DefaultMaxAge),
@@ -333,9 +354,11 @@ func (v *Validator) Reject(subject []byte, err error) (Reason, error) {
 // Checks in order, the first that fails giving the reason: a payload error
 // (Payload.Err); the subject against the template; characteristic and group
 // names (at most MaxNameLen bytes of UTF-8 without control characters);
-// no_group; unknown_characteristic; the value (not_a_number, not_finite,
-// out_of_range of float64); wrong_unit; the plausible range (out_of_range);
-// from_future and too_old (a payload without time takes now); duplicate_id.
+// no_group; unknown_characteristic; the lengths of the value text and the
+// id (MaxValueText: not_a_number; MaxIDLen: not_parseable); the value
+// (not_a_number, not_finite, out_of_range of float64); wrong_unit; the plausible range (out_of_range);
+// from_future and too_old (a payload without time takes now; times outside
+// 1823 to 2116 are refused whatever the limits); duplicate_id.
 // A rejected measurement changes nothing but the counters: its id is not
 // remembered and it does not fix a reference.
 //
@@ -353,8 +376,8 @@ func (v *Validator) Check(now time.Time, subject []byte, p *Payload, out *Measur
 }
 
 func (v *Validator) check(now time.Time, subject []byte, p *Payload, out *Measurement) *RejectError {
-	m, ok := v.tmpl.Match(subject)
-	if !ok {
+	m := &v.match
+	if !v.tmpl.match(subject, m) {
 		return reject(ReasonNotParseable, p.Characteristic, fmt.Sprintf(
 			"subject %q does not match the subject template %q; publish to %s or change the template",
 			short(string(subject)), v.tmpl.String(), v.tmpl.Filter()), nil)
@@ -368,8 +391,16 @@ func (v *Validator) check(now time.Time, subject []byte, p *Payload, out *Measur
 			"the subject names characteristic %q but the payload's \"characteristic\" field says %q; make the publisher agree, or drop the field",
 			short(string(char)), short(string(p.Characteristic))), nil)
 	}
-	if problem := nameProblem(char); problem != "" {
-		return reject(ReasonNotParseable, nil, fmt.Sprintf("characteristic name %q %s", short(string(char)), problem), nil)
+	// The characteristic's state, if known (no side effects): a known name
+	// was checked when it became known, so only others need nameProblem.
+	cs := v.last
+	if cs == nil || cs.name != string(char) {
+		cs = v.chars[string(char)]
+	}
+	if cs == nil {
+		if problem := nameProblem(char); problem != "" {
+			return reject(ReasonNotParseable, nil, fmt.Sprintf("characteristic name %q %s", short(string(char)), problem), nil)
+		}
 	}
 	group := m.Group
 	switch {
@@ -389,7 +420,6 @@ func (v *Validator) check(now time.Time, subject []byte, p *Payload, out *Measur
 		return reject(ReasonNotParseable, char, fmt.Sprintf("group name %q %s", short(string(group)), problem), nil)
 	}
 
-	cs := v.chars[string(char)]
 	if cs == nil {
 		switch {
 		case v.unknown == UnknownReject:
@@ -407,6 +437,15 @@ func (v *Validator) check(now time.Time, subject []byte, p *Payload, out *Measur
 	hasRef := false
 	if cs != nil {
 		rules, ref, hasRef = cs.rules, cs.ref, cs.hasRef
+	}
+
+	if len(p.Value) > MaxValueText {
+		return reject(ReasonNotANumber, char, fmt.Sprintf(
+			"value text is %d bytes, more than the %d lockstep keeps; send the measurement with fewer digits", len(p.Value), MaxValueText), nil)
+	}
+	if len(p.ID) > MaxIDLen {
+		return reject(ReasonNotParseable, char, fmt.Sprintf(
+			"id is %d bytes, more than the %d lockstep keeps; use a shorter id", len(p.ID), MaxIDLen), nil)
 	}
 
 	// The value. The first value of a characteristic without a reference
@@ -448,6 +487,14 @@ func (v *Validator) check(now time.Time, subject []byte, p *Payload, out *Measur
 	if p.HasTime {
 		t = p.Time
 	}
+	switch {
+	case t.Before(time.Unix(0, -maxEventNs)):
+		return reject(ReasonTooOld, char, "time "+t.Format(time.RFC3339)+
+			" is before 1823, which lockstep does not keep; check the publisher's clock and time unit", nil)
+	case t.After(time.Unix(0, maxEventNs)):
+		return reject(ReasonFromFuture, char, "time "+t.Format(time.RFC3339)+
+			" is after 2116, which lockstep does not keep; check the publisher's clock and time unit", nil)
+	}
 	if ahead := t.Sub(now); v.maxFuture >= 0 && ahead > v.maxFuture {
 		return reject(ReasonFromFuture, char, fmt.Sprintf(
 			"time %s is %v ahead of now (%s), more than the %v allowed; check the publisher's clock",
@@ -465,10 +512,15 @@ func (v *Validator) check(now time.Time, subject []byte, p *Payload, out *Measur
 	}
 
 	var h uint64
+	slot := -1 // where the id goes in cs.ids, if known
 	checkID := len(p.ID) > 0 && v.idMemory > 0
 	if checkID {
 		h = maphash.Bytes(v.seed, p.ID)
-		if cs != nil && cs.ids.has(h) {
+		dup := false
+		if cs != nil {
+			slot, dup = cs.ids.lookup(h)
+		}
+		if dup {
 			return reject(ReasonDuplicateID, char, fmt.Sprintf(
 				"id %q was already accepted for characteristic %q (among its last %d ids); the publisher sent it twice",
 				short(string(p.ID)), short(string(char)), v.idMemory), nil)
@@ -484,21 +536,92 @@ func (v *Validator) check(now time.Time, subject []byte, p *Payload, out *Measur
 	if !cs.hasRef {
 		cs.ref, cs.hasRef = ref, true
 	}
+	v.last = cs
 	if checkID {
-		cs.ids.add(h, v.idMemory)
+		cs.ids.add(h, slot, v.idMemory)
 	}
-	*out = Measurement{
-		Characteristic: cs.name,
-		Group:          group,
-		Time:           t,
-		Text:           p.Value,
-		Value:          x,
-		Exact:          exact,
-		ID:             p.ID,
-		Reference:      cs.ref,
-		Subject:        m,
-	}
+	// Field by field, and only the labels the template has: the whole
+	// Measurement, with its SubjectMatch, is over 400 bytes.
+	out.Characteristic = cs.name
+	out.Group = group
+	out.Time = t
+	out.Text = p.Value
+	out.Value = x
+	out.Exact = exact
+	out.ID = p.ID
+	out.Reference = cs.ref
+	out.Subject.Characteristic, out.Subject.Group, out.Subject.n = m.Characteristic, m.Group, m.n
+	copy(out.Subject.labels[:m.n], m.labels[:m.n])
 	return nil
+}
+
+// Prefetch notes the places of the duplicate-id memory that the Checks of
+// payloads, which arrived on subject, will read first; LoadPrefetched reads
+// them. It changes nothing else, and is only a hint: call Check as usual
+// afterwards. The duplicate-id memory of a characteristic is megabytes at
+// the default size, and each lookup misses the cache; noting the places for
+// several messages, then reading them in one tight loop, lets the misses
+// overlap, and the Checks then find them in cache. It notes at most
+// maxPrefetch places between two calls of LoadPrefetched, and does not
+// allocate.
+func (v *Validator) Prefetch(subject []byte, ps []Payload) {
+	if v.idMemory <= 0 || len(ps) == 0 || len(v.prefetch) == cap(v.prefetch) {
+		return
+	}
+	m := &v.pmatch
+	if !v.tmpl.match(subject, m) {
+		return
+	}
+	cs := v.last
+	if cs == nil || cs.name != string(m.Characteristic) {
+		if cs = v.chars[string(m.Characteristic)]; cs == nil {
+			return
+		}
+	}
+	// cs.prefetched is the sequence number of the next id whose expiry to
+	// note: the ids noted since the memory last took one are ahead of it.
+	cs.prefetched = max(cs.prefetched, cs.ids.next)
+	for i := range ps {
+		if len(ps[i].ID) > 0 && cap(v.prefetch)-len(v.prefetch) >= 2 {
+			v.prefetch = cs.ids.slots(v.prefetch, maphash.Bytes(v.seed, ps[i].ID), cs.prefetched, v.idMemory)
+			cs.prefetched++
+		}
+	}
+}
+
+// maxPrefetch is the most places Prefetch notes.
+const maxPrefetch = 64
+
+// LoadPrefetched reads the places Prefetch noted and forgets them. Its
+// result means nothing; keep it (add it to a field, say) so that the reads
+// are kept.
+func (v *Validator) LoadPrefetched() uint64 {
+	var x uint64
+	for _, p := range v.prefetch {
+		x += *p
+	}
+	clear(v.prefetch)
+	v.prefetch = v.prefetch[:0]
+	return x
+}
+
+// RememberID puts id into the duplicate memory of the characteristic name,
+// as if a measurement with that id had just been accepted: call it after a
+// restart, before any measurement is checked, with the ids of the stored
+// raw values, oldest first, so that a measurement sent again across the
+// restart is still rejected as duplicate_id. It does nothing when duplicate
+// detection is off, for an empty id, for an id already remembered, and for
+// a characteristic the Validator does not know (restore its reference with
+// SetReference first).
+func (v *Validator) RememberID(name string, id []byte) {
+	cs := v.chars[name]
+	if cs == nil || len(id) == 0 || v.idMemory <= 0 {
+		return
+	}
+	h := maphash.Bytes(v.seed, id)
+	if slot, ok := cs.ids.lookup(h); !ok {
+		cs.ids.add(h, slot, v.idMemory)
+	}
 }
 
 // Forget removes the id of m, accepted by Check, from the duplicate memory,
@@ -547,43 +670,3 @@ func valueReject(char []byte, p *Payload, err error) *RejectError {
 	}
 	return &RejectError{Reason: r, Characteristic: string(char), Msg: msg, Err: err}
 }
-
-// idMemory remembers the hashes of the last ids accepted for a
-// characteristic, first in, first out. Ids are held as 64-bit hashes
-// (hash/maphash, with a seed per Validator): two distinct ids among the
-// 100 000 remembered collide, and the later one is wrongly rejected as a
-// duplicate, with a probability of about n²/2⁶⁵ ≈ 3·10⁻¹⁰.
-type idMemory struct {
-	seq  map[uint64]uint64 // hash → sequence number when it was last added
-	ring []uint64          // hashes, by sequence number modulo the size
-	next uint64            // sequence number of the next id
-}
-
-func (m *idMemory) has(h uint64) bool {
-	_, ok := m.seq[h]
-	return ok
-}
-
-// add remembers h, forgetting the oldest id when size are remembered.
-func (m *idMemory) add(h uint64, size int) {
-	if m.seq == nil {
-		m.seq = make(map[uint64]uint64)
-	}
-	n := uint64(size)
-	if m.next < n {
-		m.ring = append(m.ring, h)
-	} else {
-		slot := m.next % n
-		// The oldest entry leaves unless it was forgotten and added again
-		// since, with a newer sequence number.
-		old := m.ring[slot]
-		if s, ok := m.seq[old]; ok && s == m.next-n {
-			delete(m.seq, old)
-		}
-		m.ring[slot] = h
-	}
-	m.seq[h] = m.next
-	m.next++
-}
-
-func (m *idMemory) forget(h uint64) { delete(m.seq, h) }

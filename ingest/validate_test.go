@@ -222,6 +222,32 @@ func TestCheckRejects(t *testing.T) {
 	})
 }
 
+// TestCheckStoreLimits: a measurement the store or the windows could not
+// keep is rejected by Check, with its reason, and one at the limit passes.
+func TestCheckStoreLimits(t *testing.T) {
+	digits := func(n int) string { return "1." + strings.Repeat("5", n-2) }
+	longID := strings.Repeat("x", MaxIDLen+1)
+	for _, tc := range []rejectCase{
+		{"value text too long", "meas.fill-weight.L3", `{"value": "` + digits(MaxValueText+1) + `"}`, ReasonNotANumber, "fewer digits"},
+		{"id too long", "meas.fill-weight.L3", `{"value": 1.5, "id": "` + longID + `"}`, ReasonNotParseable, "shorter id"},
+		{"time before 1823", "meas.fill-weight.L3", `{"value": 1.5, "time": "1800-01-01T00:00:00Z"}`, ReasonTooOld, "before 1823"},
+		{"time after 2116", "meas.fill-weight.L3", `{"value": 1.5, "time": "2200-01-01T00:00:00Z"}`, ReasonFromFuture, "after 2116"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			// No time limits: only the hard bounds apply.
+			v := newValidator(t, ValidatorConfig{MaxAge: -1, MaxFuture: -1})
+			assertRejected(t, v, nil, tc)
+		})
+	}
+	v := newValidator(t, ValidatorConfig{MaxAge: -1, MaxFuture: -1})
+	var d Decoder
+	var m Measurement
+	atLimit := `{"value": "` + digits(MaxValueText) + `", "id": "` + longID[1:] + `", "time": "2116-01-01T00:00:00Z"}`
+	if r, err := checkOne(t, v, &d, "meas.fill-weight.L3", atLimit, &m); r != ReasonNone {
+		t.Errorf("at the limits: %v %v", r, err)
+	}
+}
+
 // assertRejected checks that tc is rejected for its reason, counted under
 // it alone, and produces no measurement.
 func assertRejected(t *testing.T, v *Validator, d *Decoder, tc rejectCase) {
@@ -448,5 +474,26 @@ func BenchmarkValidate(b *testing.B) {
 		if r, err := v.Check(testNow, subject, &ps[0], &m); r != ReasonNone {
 			b.Fatal(r, err)
 		}
+	}
+}
+
+// TestRememberID: ids put back after a restart are duplicates; others, and
+// the same id of another characteristic, are not.
+func TestRememberID(t *testing.T) {
+	v := newValidator(t, ValidatorConfig{Characteristics: map[string]CharacteristicRules{"fill-weight": fillWeightRules(t)}})
+	v.RememberID("fill-weight", []byte("L3-000123"))
+	v.RememberID("fill-weight", []byte("L3-000123")) // twice is once
+	v.RememberID("not-known", []byte("L3-000123"))   // no such characteristic: nothing
+	var d Decoder
+	var m Measurement
+	assertRejected(t, v, &d, rejectCase{"", "meas.fill-weight.L3", `{"value": 500.1, "id": "L3-000123"}`, ReasonDuplicateID, "already accepted"})
+	if r, err := checkOne(t, v, &d, "meas.fill-weight.L3", `{"value": 500.1, "id": "L3-000124"}`, &m); r != ReasonNone {
+		t.Errorf("another id: %v %v", r, err)
+	}
+
+	off := newValidator(t, ValidatorConfig{IDMemory: -1, Characteristics: map[string]CharacteristicRules{"fill-weight": fillWeightRules(t)}})
+	off.RememberID("fill-weight", []byte("L3-000123"))
+	if r, err := checkOne(t, off, &d, "meas.fill-weight.L3", `{"value": 500.1, "id": "L3-000123"}`, &m); r != ReasonNone {
+		t.Errorf("duplicate detection off: %v %v", r, err)
 	}
 }
