@@ -82,8 +82,12 @@ func (m *Monitor) meansStep(in *Input, silent []bool) meansResult {
 
 	// Contrast CUSUMs.
 	sp := 0.0
+	var long []stats.Accumulator // the longest span's groups taking part
 	if longest >= 0 {
 		sp = tests[longest].table.ResidualSD
+		l, _ := m.spanAccs(in.Spans[longest].Groups, silent)
+		m.long = append(m.long[:0], l...)
+		long = m.long
 	}
 	recent, k := m.spanAccs(in.Recent, silent)
 	if sp <= 0 && k >= 2 {
@@ -98,16 +102,7 @@ func (m *Monitor) meansStep(in *Input, silent []bool) meansResult {
 		for _, a := range recent {
 			all.Merge(a)
 		}
-		zs := make([]float64, len(recent))
-		for i, a := range recent {
-			if a.N == 0 {
-				continue
-			}
-			// mean of the rest: (N·mean − n_i·mean_i) / (N − n_i)
-			nr := float64(all.N - a.N)
-			restMean := (float64(all.N)*all.Mean - float64(a.N)*a.Mean) / nr
-			zs[i] = (a.Mean - restMean) / (sp * math.Sqrt(1/float64(a.N)+1/nr))
-		}
+		zs := contrastZ(recent, all, long, sp, r.Test != TestClassic)
 		for j, c := range r.CUSUMs {
 			h := m.threshold(j, c, c.Share*r.Alpha, k, false)
 			hc := m.threshold(j, c, c.Share*r.ClearAlpha, k, true)
@@ -153,11 +148,13 @@ func (m *Monitor) meansStep(in *Input, silent []bool) meansResult {
 	}
 	c := Condition{Detector: strings.Join(fired, ", ")}
 	var accs []stats.Accumulator
+	welch := r.Test != TestClassic // the interval's form: Welch's or pooled
 	if fig >= 0 {
 		accs, _ = m.spanAccs(in.Spans[fig].Groups, silent)
 		ft := tests[fig]
 		c.Test, c.F, c.P, c.Effect = ft.test, ft.f, ft.p, ft.effect
 		c.From, c.To = in.Spans[fig].From, in.Spans[fig].To
+		welch = ft.test == "Welch F"
 	} else {
 		accs, _ = m.spanAccs(in.Recent, silent)
 		c.From, c.To = in.RecentFrom, in.Time
@@ -171,7 +168,20 @@ func (m *Monitor) meansStep(in *Input, silent []bool) meansResult {
 		res.cond = c
 		return res
 	}
-	shift, lo, hi, ok := shiftOf(accs, named, named[0], r.Confidence)
+	if r.Practical > 0 && len(named) > 1 {
+		// Name only the groups whose own shift is worth an alert: with
+		// thousands of values, analysis of means also names groups that
+		// differ by a statistically clear but negligible amount. Each is
+		// judged against the groups not named, as the first one is.
+		keep, kdirs := named[:1:1], dirs[:1:1]
+		for k, i := range named[1:] {
+			if sh, l, h, ok := shiftOf(accs, named, i, r.Confidence, welch); ok && r.worthIt(sh, l, h) {
+				keep, kdirs = append(keep, i), append(kdirs, dirs[k+1])
+			}
+		}
+		named, dirs = keep, kdirs
+	}
+	shift, lo, hi, ok := shiftOf(accs, named, named[0], r.Confidence, welch)
 	for _, i := range named {
 		c.Groups = append(c.Groups, in.Groups[i])
 	}
@@ -185,12 +195,7 @@ func (m *Monitor) meansStep(in *Input, silent []bool) meansResult {
 		}
 	}
 	if r.Practical > 0 {
-		switch r.Judge {
-		case JudgeEstimate:
-			res.practical = ok && math.Abs(shift) >= r.Practical
-		default:
-			res.practical = ok && (lo >= r.Practical || hi <= -r.Practical)
-		}
+		res.practical = ok && r.worthIt(shift, lo, hi)
 	}
 	word := "high"
 	if c.Direction < 0 {
@@ -206,6 +211,78 @@ func (m *Monitor) meansStep(in *Input, silent []bool) meansResult {
 	}
 	res.cond = c
 	return res
+}
+
+// contrastZ returns each taking-part group's standardized contrast
+// against the others for the CUSUMs (see Monitor): the group's recent mean
+// minus the n-weighted mean of the other groups' recent values, over its
+// standard error. all is the recent values of every group together.
+//
+// With welch false the standard error is s_p·√(1/n_i + 1/n_rest) on the
+// pooled within-group SD sp, which assumes equal spreads. With welch true
+// each group has its own variance, as in Welch's (1951) test (B. L. Welch,
+// "On the comparison of several mean values: an alternative approach",
+// Biometrika 38, 330–336):
+//
+//	SE_i² = v_i/n_i + Σ_{j≠i} n_j·v_j / n_rest²,
+//
+// the variance of the contrast when the groups' values are independent
+// with variances v_j (with equal n_j it is v_i/n_i + Σ_{j≠i} v_j/n_j/(k−1)²).
+// v_j is the larger of group j's variance over long (the longest window
+// span: about 30 times the values of one evaluation, so it is stable) and
+// over its recent values. The recent one covers the minutes after a spread
+// grows, while the long span still holds mostly values of the old spread
+// (with the long span alone, the test TestSpreadChangeRaisesNoMeansAlert
+// raised in 29 runs of 60). Taking the larger keeps z at about N(0, 1), or
+// narrower, when a group's spread changes but its mean does not; in
+// control it makes the CUSUMs fire less often than their share, so the
+// default Alpha is twice the pooled form's for the same false raises, at
+// which `lockstep calibrate` measures the same times to raise (see the
+// README). A group without values in long (too few, or no span) uses sp²
+// there.
+func contrastZ(recent []stats.Accumulator, all stats.Accumulator, long []stats.Accumulator, sp float64, welch bool) []float64 {
+	zs := make([]float64, len(recent))
+	var v []float64
+	if welch {
+		v = make([]float64, len(recent))
+		for j, a := range recent {
+			if a.N == 0 {
+				continue
+			}
+			v[j] = sp * sp
+			if j < len(long) && long[j].N >= 2 {
+				v[j] = long[j].Variance()
+			}
+			if a.N >= 2 {
+				v[j] = math.Max(v[j], a.Variance())
+			}
+		}
+	}
+	// Σ_j n_j·v_j over every taking-part group, for the rest's variance.
+	var nv float64
+	for j, a := range recent {
+		if welch && a.N > 0 {
+			nv += float64(a.N) * v[j]
+		}
+	}
+	for i, a := range recent {
+		if a.N == 0 || all.N <= a.N {
+			continue
+		}
+		// mean of the rest: (N·mean − n_i·mean_i) / (N − n_i)
+		nr := float64(all.N - a.N)
+		restMean := (float64(all.N)*all.Mean - float64(a.N)*a.Mean) / nr
+		var se float64
+		if welch {
+			se = math.Sqrt(v[i]/float64(a.N) + (nv-float64(a.N)*v[i])/(nr*nr))
+		} else {
+			se = sp * math.Sqrt(1/float64(a.N)+1/nr)
+		}
+		if se > 0 {
+			zs[i] = (a.Mean - restMean) / se
+		}
+	}
+	return zs
 }
 
 // threshold returns the CUSUM detector j's h at level alpha for g groups.
@@ -278,9 +355,15 @@ func (m *Monitor) nameByMeans(accs []stats.Accumulator, rep *stats.Report, names
 }
 
 // shiftOf returns the mean of group g minus the pooled mean of the groups
-// not named, with a t interval at the given confidence on the pooled
-// within-group SD of all groups taking part (N − k df).
-func shiftOf(accs []stats.Accumulator, named []int, g int, confidence float64) (shift, lo, hi float64, ok bool) {
+// not named, with a t interval at the given confidence. With welch false it
+// rests on the pooled within-group SD of all groups taking part (N − k df).
+// With welch true (the Welch F was the test, or the CUSUMs' per-group
+// standard error was used) it rests on each group's own variance, as in
+// Welch's (1951) test: SE² = s_g²/n_g + Σ_rest n_j·s_j²/n_rest², with the
+// Welch–Satterthwaite degrees of freedom SE⁴ / Σ_j (c_j²·s_j²/n_j)²/(n_j − 1),
+// c_j the contrast's weights (1 for g, n_j/n_rest for the rest); a group
+// whose spread grew then gets an interval as wide as its values warrant.
+func shiftOf(accs []stats.Accumulator, named []int, g int, confidence float64, welch bool) (shift, lo, hi float64, ok bool) {
 	t, err := stats.OneWay(accs)
 	if err != nil || g >= len(accs) || accs[g].N == 0 {
 		return 0, 0, 0, false
@@ -295,9 +378,39 @@ func shiftOf(accs []stats.Accumulator, named []int, g int, confidence float64) (
 		return 0, 0, 0, false
 	}
 	shift = accs[g].Mean - rest.Mean
-	q := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: t.DFWithin}.Quantile(1 - (1-confidence)/2)
-	h := q * t.ResidualSD * math.Sqrt(1/float64(accs[g].N)+1/float64(rest.N))
+	se := t.ResidualSD * math.Sqrt(1/float64(accs[g].N)+1/float64(rest.N))
+	df := t.DFWithin
+	if welch && accs[g].N >= 2 {
+		ng := float64(accs[g].N)
+		vg := accs[g].Variance() / ng
+		se2, den := vg, vg*vg/(ng-1)
+		nr := float64(rest.N)
+		for i, a := range accs {
+			if containsInt(named, i) || a.N < 2 {
+				continue
+			}
+			n := float64(a.N)
+			v := n * a.Variance() / (nr * nr)
+			se2 += v
+			den += v * v / (n - 1)
+		}
+		if se2 > 0 && den > 0 {
+			se, df = math.Sqrt(se2), se2*se2/den
+		}
+	}
+	q := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: df}.Quantile(1 - (1-confidence)/2)
+	h := q * se
 	return shift, shift - h, shift + h, true
+}
+
+// worthIt tells whether a shift with interval [lo, hi] passes the
+// practical difference, as Judge says: its point estimate, or its whole
+// interval, beyond ±Practical.
+func (r *Rule) worthIt(shift, lo, hi float64) bool {
+	if r.Judge == JudgeEstimate {
+		return math.Abs(shift) >= r.Practical
+	}
+	return lo >= r.Practical || hi <= -r.Practical
 }
 
 func containsInt(xs []int, x int) bool {

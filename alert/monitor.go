@@ -19,11 +19,23 @@ import (
 // schemes", Biometrika 41, 100–115) takes at each evaluation the values
 // since the previous one and forms
 //
-//	z_i = (mean_i − mean_rest) / (s_p · √(1/n_i + 1/n_rest)),
+//	z_i = (mean_i − mean_rest) / SE_i,
 //
 // mean_rest the mean of the other taking part groups' values together and
-// s_p the pooled within-group SD of the longest window span (of Recent
-// when there is no span), so that z_i is about N(0, 1) in control; then
+// SE_i the contrast's standard error, so that z_i is about N(0, 1) in
+// control. With Rule.Test classic, SE_i = s_p·√(1/n_i + 1/n_rest) on the
+// pooled within-group SD s_p of the longest window span (of Recent when
+// there is no span). Otherwise (auto, welch) each group has its own
+// variance v_j, as in Welch's (1951) test:
+//
+//	SE_i² = v_i/n_i + Σ_{j≠i} n_j·v_j / n_rest²,
+//
+// with equal n_j the familiar v_i/n_i + Σ_{j≠i} v_j/n_j / (k−1)², and v_j
+// the larger of group j's variance over the longest window span and over
+// its recent values (see contrastZ). The pooled s_p would let a group whose
+// spread grew, with its mean unchanged, produce z values wider than
+// N(0, 1) and set off the CUSUMs: a spread change is the spread condition's
+// business, not the means condition's. Then
 // S⁺_i = max(0, S⁺_i + z_i − k) and S⁻_i = max(0, S⁻_i − z_i − k), and the
 // detector fires while some S ≥ h. Like the F test it is blind to a drift
 // that moves every group together. Sums are capped at h (see cusumStep),
@@ -40,7 +52,7 @@ type Monitor struct {
 
 	hCache map[hKey]float64
 	// scratch
-	accs []stats.Accumulator
+	accs, long []stats.Accumulator
 }
 
 type hKey struct {

@@ -2,6 +2,7 @@ package alert
 
 import (
 	"math"
+	"slices"
 	"testing"
 	"time"
 
@@ -325,6 +326,35 @@ func TestSpreadDiverges(t *testing.T) {
 		}
 		if s.want == PhaseRaise && (cs[0].Groups[0] != "B" || !near(cs[0].Ratio, s.sdB/1.5, 1e-12)) {
 			t.Errorf("named %v ratio %v, want B, %v", cs[0].Groups, cs[0].Ratio, s.sdB/1.5)
+		}
+	}
+}
+
+// TestMeansNamesOnlyPracticalGroups: with thousands of values, analysis of
+// means names a second group that differs by a clear but negligible 0.06
+// (B: deviation 0.04 from the mean of B, C, D, beyond limits of about
+// ±0.03). Without a practical difference both are named; with one of 0.3
+// only A, whose shift of 1.5 is worth an alert.
+func TestMeansNamesOnlyPracticalGroups(t *testing.T) {
+	span := []stats.Accumulator{accOf(4000, 1.5, 1), accOf(4000, 0.06, 1), accOf(4000, 0, 1), accOf(4000, 0, 1)}
+	groups := []string{"A", "B", "C", "D"}
+	for _, tc := range []struct {
+		practical float64
+		want      []string
+		shift     float64 // A against the groups not named
+	}{{0, []string{"A", "B"}, 1.5}, {0.3, []string{"A"}, 1.5 - 0.02}} {
+		r := meansOnly([]WindowF{{Length: time.Minute, Share: 1}}, nil)
+		r.Alpha, r.ClearAlpha, r.Test, r.Practical = 1e-4, 0.01, TestClassic, tc.practical
+		m, _ := NewMonitor(r)
+		cs := m.Step(inputAt(0, groups, span, nil))
+		if len(cs) != 1 || cs[0].Phase != PhaseRaise {
+			t.Fatalf("practical %v: conditions %+v, want one raise", tc.practical, cs)
+		}
+		if !slices.Equal(cs[0].Groups, tc.want) {
+			t.Errorf("practical %v: named %v, want %v", tc.practical, cs[0].Groups, tc.want)
+		}
+		if !near(cs[0].Shift, tc.shift, 1e-9) {
+			t.Errorf("practical %v: shift %v, want %v (A against the groups not named)", tc.practical, cs[0].Shift, tc.shift)
 		}
 	}
 }
