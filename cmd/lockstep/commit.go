@@ -6,6 +6,7 @@ import (
 	"slices"
 	"time"
 
+	"github.com/lockstep-project/lockstep/alert"
 	"github.com/lockstep-project/lockstep/store"
 )
 
@@ -16,12 +17,21 @@ import (
 // maxPendingFactor times), so that under load the batches grow with the
 // commit latency and each fsync carries more values. The loop acknowledges
 // a batch's messages only when its commit has returned, and in order, so
-// that an AckAll never covers a message that is not stored; Fetch and Ack
-// both stay on the loop's goroutine, as ingest.Source asks.
+// that an AckAll never covers a message that is not stored; Ack stays on
+// the loop's goroutine, Fetch on the ingest stage's (stage.go).
 
 // maxPendingFactor bounds the batch in hand while another is in flight, in
 // multiples of commit_values; past it the loop waits for the commit.
 const maxPendingFactor = 16
+
+// jsMaxAckPending is the JetStream consumer's MaxAckPending for a pull batch
+// and commit_values: room for every message the daemon may hold without an
+// acknowledgement (the pulls and the source's buffer, the ingest stage's
+// batches, the batch in hand grown to its bound, the batch in flight), so
+// that the server never pauses delivery while a slow commit is in flight.
+func jsMaxAckPending(batch, commitValues int) int {
+	return max(10*batch, 3*batch+(stageDepth+1)*commitValues+(maxPendingFactor+2)*commitValues)
+}
 
 // commitJob is one batch on its way to the store.
 type commitJob struct {
@@ -30,6 +40,9 @@ type commitJob struct {
 	ack   uint64 // highest stream sequence to acknowledge after it
 	took  time.Duration
 	err   error
+	// alerts are the alert events whose records the batch holds, sent to
+	// the sinks once it has committed (alerting.go).
+	alerts []alert.Event
 }
 
 // due reports whether the batch in hand is to be committed: it is full, or
@@ -80,7 +93,7 @@ func (d *daemon) startCommit() {
 	d.inflight = job
 	go func() {
 		b := &job.batch
-		if len(b.Characteristics)+len(b.Buckets)+len(b.Raw) > 0 || b.Cursor > 0 {
+		if len(b.Characteristics)+len(b.Buckets)+len(b.Raw)+len(b.Alerts)+len(b.MonitorStates) > 0 || b.Cursor > 0 {
 			t0 := time.Now()
 			job.err = d.st.Commit(b)
 			job.took = time.Since(t0)
@@ -108,6 +121,8 @@ func (d *daemon) takeBatch() *commitJob {
 	if p.seq > 0 {
 		job.batch.Consumer, job.batch.Cursor = d.consumer, p.seq
 	}
+	job.batch.Alerts, job.batch.MonitorStates, job.alerts = d.alerts.take()
+	p.alerts = false
 	for k := range p.touched {
 		start := time.Unix(0, k.start)
 		acc, sample, ok := k.c.win.Bucket(start, k.group)
@@ -172,6 +187,8 @@ func (d *daemon) finishCommit(job *commitJob) error {
 			d.log.Warn().Err(err).Uint64("seq", job.ack).Msg("ack failed; the messages come again and are skipped")
 		}
 	}
+	d.alerts.dispatch(job.alerts)
+	job.alerts = nil
 	d.spare = job
 	return nil
 }

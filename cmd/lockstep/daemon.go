@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"strings"
 	"sync/atomic"
 	"time"
 
@@ -16,12 +17,13 @@ import (
 )
 
 // daemon is the apply loop of lockstep run. One goroutine owns it (and its
-// windows): it fetches a batch of messages, skips those at or below the
-// applied stream sequence, decodes and validates the rest, republishes the
-// rejects, adds the accepted values to their windows and keeps them as raw
-// values, commits by size and by time (the new characteristics, the full
-// state of every bucket the batch touched, the raw values and the cursor, in
-// one transaction, written while the loop goes on: see commit.go),
+// windows): it takes the batches of the ingest stage (stage.go: fetched,
+// skipped at or below the applied stream sequence, decoded and validated,
+// rejects republished, on a goroutine of its own), adds the accepted values
+// to their windows and keeps them as raw values, commits by size and by
+// time (the new characteristics, the full state of every bucket the batch
+// touched, the raw values and the cursor, in one transaction, written while
+// the loop goes on: see commit.go),
 // acknowledges only after the commit, and evaluates each characteristic's
 // window on its interval.
 type daemon struct {
@@ -50,16 +52,16 @@ type daemon struct {
 	dropped    uint64    // source drops seen so far
 	lastDropAt time.Time // when the last were seen
 
-	dec  ingest.Decoder
-	meas ingest.Measurement
-	subj []byte
-	pend pendingBatch
+	pend     pendingBatch
+	lastChar *liveChar // the characteristic of the last value applied
 
 	inflight *commitJob      // the batch being committed, or nil
 	spare    *commitJob      // a finished job, whose slices the next reuses
 	done     chan *commitJob // where the committing goroutine returns it
 
 	ready atomic.Bool
+
+	alerts *alerting // the alert monitors, machines and sinks (alerting.go)
 }
 
 // newDaemon returns the loop for cfg on st, with its metrics and report
@@ -78,6 +80,7 @@ func newDaemon(cfg *Config, st stateStore, log zerolog.Logger) *daemon {
 	if cfg.NATS.Source == "jetstream" {
 		d.consumer = cfg.NATS.Consumer
 	}
+	d.alerts = newAlerting(cfg, log.With().Str("part", "alerts").Logger(), d.met.reg)
 	return d
 }
 
@@ -90,6 +93,10 @@ type stateStore interface {
 	Raw(char string, from, to time.Time, fn func(store.RawValue) error) error
 	Retain(char string, rawBefore, bucketsBefore time.Time) (int, error)
 	Path() string
+	// The alert records and monitor states (alerting.go).
+	Alerts(fn func(store.AlertRecord) error) error
+	MonitorState(char string) ([]byte, error)
+	RetainAlerts(before time.Time) (int, error)
 }
 
 var _ stateStore = (*store.Store)(nil)
@@ -112,6 +119,9 @@ type liveChar struct {
 	inexact  int64
 	dropAt   time.Time // when the source last dropped messages
 	dropped  uint64    // messages dropped since the daemon started
+	// accepted and rejected count its measurements since the last
+	// evaluation, for the alert monitor.
+	accepted, rejected uint64
 }
 
 // pendingBatch is what the next commit writes.
@@ -123,6 +133,7 @@ type pendingBatch struct {
 	since   time.Time // when the batch got its first message
 	seq     uint64    // stream sequence of the last message applied; 0 for none
 	ack     uint64    // highest sequence to acknowledge after the commit
+	alerts  bool      // alert records or monitor states wait (alerting.take)
 }
 
 // touchKey is a bucket of a group that a batch added values to.
@@ -133,10 +144,10 @@ type touchKey struct {
 }
 
 func (p *pendingBatch) empty() bool {
-	return len(p.chars) == 0 && len(p.raw) == 0 && len(p.touched) == 0 && p.seq == 0 && p.ack == 0 && p.items == 0
+	return len(p.chars) == 0 && len(p.raw) == 0 && len(p.touched) == 0 && p.seq == 0 && p.ack == 0 && p.items == 0 && !p.alerts
 }
 
-// maxIdle bounds a fetch's wait, so that the loop looks at the clock now
+// maxIdle bounds a fetch's wait, so that the stage looks at the clock now
 // and then on a silent stream.
 const maxIdle = time.Second
 
@@ -144,6 +155,13 @@ const maxIdle = time.Second
 // acknowledging the batches in flight and in hand, or with the error that
 // stops it (a failed commit, or a source that can deliver nothing more).
 func (d *daemon) run(ctx context.Context) error {
+	st := d.newStage()
+	sctx, cancel := context.WithCancel(ctx)
+	quit := make(chan struct{})
+	defer func() { close(quit); cancel() }()
+	go st.run(sctx, quit)
+	timer := time.NewTimer(maxIdle)
+	defer timer.Stop()
 	for {
 		if err := d.pollCommit(); err != nil {
 			return err
@@ -153,10 +171,22 @@ func (d *daemon) run(ctx context.Context) error {
 		if err := d.retainDue(now); err != nil {
 			d.log.Error().Err(err).Msg("retention failed; retrying in an hour")
 		}
-		msgs, err := d.src.Fetch(ctx, d.commitValues, d.wait(d.now()))
+		timer.Reset(d.wait(d.now()))
+		var b *stageBatch
+		select {
+		case b = <-st.out:
+		case job := <-d.done: // only while a commit is in flight
+			if err := d.finishCommit(job); err != nil {
+				return err
+			}
+		case <-timer.C:
+		}
 		d.ready.Store(true)
-		for i := range msgs {
-			d.apply(&msgs[i])
+		var err error
+		if b != nil {
+			d.applyBatch(b)
+			err = b.err
+			st.recycle(b)
 		}
 		d.checkDrops()
 		switch {
@@ -167,14 +197,8 @@ func (d *daemon) run(ctx context.Context) error {
 			}
 			d.log.Info().Uint64("cursor", d.cursor).Msg("stopped fetching; the batch in flight is committed")
 			return nil
-		case errors.Is(err, ingest.ErrSourceClosed):
+		default: // the source closed
 			return errors.Join(fmt.Errorf("fetch measurements: %w", err), d.flush())
-		default:
-			d.log.Warn().Err(err).Msg("fetch failed; retrying")
-			select {
-			case <-ctx.Done():
-			case <-time.After(100 * time.Millisecond):
-			}
 		}
 		if err := d.commitDue(d.now()); err != nil {
 			return err
@@ -182,142 +206,74 @@ func (d *daemon) run(ctx context.Context) error {
 	}
 }
 
-// wait is how long the next fetch may wait: until the batch in hand is due
-// for its commit, or the next evaluation, and at most maxIdle; while a
-// commit is in flight, briefly, so that its messages are acknowledged soon
-// after it ends.
+// wait is how long the loop may wait for the next batch: until the batch in
+// hand is due for its commit, or the next evaluation, and at most maxIdle.
 func (d *daemon) wait(now time.Time) time.Duration {
 	w := min(maxIdle, d.nextEval.Sub(now))
 	if !d.pend.empty() {
 		w = min(w, d.pend.since.Add(d.commitEvery).Sub(now))
 	}
-	if d.inflight != nil {
-		w = min(w, 2*time.Millisecond)
-	}
 	return max(w, time.Millisecond)
 }
 
-// apply applies one message: skipped when its sequence was applied before,
-// otherwise decoded, validated and added, each measurement on its own.
-func (d *daemon) apply(msg *ingest.Msg) {
-	if d.pend.since.IsZero() {
+// applyBatch applies a batch of the stage, item by item in message order.
+func (d *daemon) applyBatch(b *stageBatch) {
+	if len(b.items) > 0 && d.pend.since.IsZero() {
 		d.pend.since = d.now()
 	}
-	if msg.Seq != 0 && msg.Seq <= d.cursor {
-		d.met.skipped.Add(1)
-		d.pend.ack = max(d.pend.ack, msg.Seq)
-		return
-	}
-	d.met.applied.Add(1)
-	now := msg.Arrived
-	if d.stampStored && !msg.Stored.IsZero() {
-		now = msg.Stored
-	}
-	d.subj = append(d.subj[:0], msg.Subject...)
-	payloads, err := d.dec.Decode(msg.Data)
-	if err != nil {
-		r, rerr := d.val.Reject(d.subj, err)
-		d.reject(r, rerr, msg)
-	}
-	for i := range payloads {
-		p := &payloads[i]
-		if r, rerr := d.precheck(p); r != ingest.ReasonNone {
-			d.val.Counters().Add(r)
-			d.reject(r, rerr, msg)
-			continue
+	for i := range b.items {
+		it := &b.items[i]
+		switch it.kind {
+		case itemAccept:
+			d.accept(b, it)
+		case itemReject:
+			d.pend.items++
+			if c := d.chars[it.char]; c != nil {
+				c.rejected++
+			}
+		case itemSkip:
+			d.met.skipped.Add(1)
+			d.pend.ack = max(d.pend.ack, it.seq)
+		case itemEnd:
+			d.met.applied.Add(1)
+			if it.seq != 0 {
+				d.cursor, d.pend.seq, d.pend.ack = it.seq, it.seq, it.seq
+			}
 		}
-		r, rerr := d.val.Check(now, d.subj, p, &d.meas)
-		if r != ingest.ReasonNone {
-			d.reject(r, rerr, msg)
-			continue
-		}
-		d.accept(&d.meas, p.Unit)
-	}
-	if msg.Seq != 0 {
-		d.cursor, d.pend.seq, d.pend.ack = msg.Seq, msg.Seq, msg.Seq
 	}
 }
 
-// Limits of what the store and the windows keep, checked before
-// Validator.Check so that a measurement beyond them is counted as a reject
-// and never fails a commit.
-const (
-	maxValueText = 256 // store.RawValue.Text
-	maxIDText    = 255 // store.RawValue.ID
-	// maxEventNs bounds the event times a window accepts: ±2⁶² ns around
-	// the Unix epoch.
-	maxEventNs = 1 << 62
-)
-
-// precheck rejects a payload the store or the window could not keep.
-func (d *daemon) precheck(p *ingest.Payload) (ingest.Reason, error) {
-	var r ingest.Reason
-	var msg string
-	switch {
-	case p.Err != nil:
-		return ingest.ReasonNone, nil // Check gives its reason
-	case len(p.Value) > maxValueText:
-		r, msg = ingest.ReasonNotANumber, fmt.Sprintf("value text is %d bytes, more than the %d lockstep keeps; send the measurement with fewer digits", len(p.Value), maxValueText)
-	case len(p.ID) > maxIDText:
-		r, msg = ingest.ReasonNotParseable, fmt.Sprintf("id is %d bytes, more than the %d lockstep keeps; use a shorter id", len(p.ID), maxIDText)
-	case p.HasTime && p.Time.Before(time.Unix(0, -maxEventNs)):
-		r, msg = ingest.ReasonTooOld, "time "+p.Time.Format(time.RFC3339)+" is before 1823, which lockstep does not keep; check the publisher's clock and time unit"
-	case p.HasTime && p.Time.After(time.Unix(0, maxEventNs)):
-		r, msg = ingest.ReasonFromFuture, "time "+p.Time.Format(time.RFC3339)+" is after 2116, which lockstep does not keep; check the publisher's clock and time unit"
-	default:
-		return ingest.ReasonNone, nil
-	}
-	m, _ := d.val.Template().Match(d.subj)
-	return r, &ingest.RejectError{Reason: r, Characteristic: string(m.Characteristic), Msg: msg}
-}
-
-// reject republishes a rejected measurement (or message) to its dead-letter
-// subject. It was counted by the Validator; it reaches no sum.
-func (d *daemon) reject(r ingest.Reason, err error, msg *ingest.Msg) {
-	d.pend.items++
-	char := ""
-	var re *ingest.RejectError
-	if errors.As(err, &re) {
-		char = re.Characteristic
-	}
-	if e := d.log.Debug(); e.Enabled() {
-		e.Str("reason", r.String()).Str("subject", msg.Subject).Uint64("seq", msg.Seq).Err(err).Msg("measurement rejected")
-	}
-	if d.dead != nil {
-		d.dead.Publish(ingest.DeadLetterSubject(d.rejectPrefix, char), ingest.RejectMessage(r, err, msg.Subject, msg.Data, d.now()))
-	}
-}
-
-// accept adds an accepted measurement to its window and to the batch; unit
-// is the payload's.
-func (d *daemon) accept(m *ingest.Measurement, unit []byte) {
-	c, err := d.charFor(m, unit)
+// accept adds an accepted measurement of batch b to its window and to the
+// batch in hand.
+func (d *daemon) accept(b *stageBatch, m *stageItem) {
+	c, err := d.charFor(b, m)
 	if err != nil {
 		d.met.winRejects.Add(1)
-		d.log.Error().Err(err).Str("characteristic", m.Characteristic).Msg("measurement dropped")
+		d.log.Error().Err(err).Str("characteristic", m.char).Msg("measurement dropped")
 		return
 	}
-	g := c.win.GroupBytes(m.Group)
-	switch c.win.Add(g, m.Time, m.Value) {
+	g := c.win.GroupBytes(b.bytes(m.group))
+	switch c.win.Add(g, m.t, m.value) {
 	case window.Added:
 		d.met.added.Add(1)
 		if c.set.Window.Count == 0 {
-			d.pend.touched[touchKey{c: c, start: c.win.BucketStart(m.Time).UnixNano(), group: g}] = struct{}{}
+			d.pend.touched[touchKey{c: c, start: c.win.BucketStart(m.t).UnixNano(), group: g}] = struct{}{}
 		}
 	case window.Late:
 		d.met.late.Add(1)
 	case window.Expired:
 		d.met.expired.Add(1)
-	default: // precheck keeps such times out
+	default: // Validator.Check keeps such times out
 		d.met.winRejects.Add(1)
-		d.log.Warn().Str("characteristic", c.name).Time("time", m.Time).Msg("the window refused a measurement's time; it is not kept")
+		d.log.Warn().Str("characteristic", c.name).Time("time", m.t).Msg("the window refused a measurement's time; it is not kept")
 		return
 	}
 	d.pend.raw = append(d.pend.raw, store.RawValue{
-		Characteristic: c.name, Group: c.win.Groups()[g], Time: m.Time, Text: string(m.Text), ID: string(m.ID),
+		Characteristic: c.name, Group: c.win.Groups()[g], Time: m.t, Text: b.string(m.text), ID: b.string(m.id),
 	})
 	d.pend.items++
-	if !m.Exact {
+	c.accepted++
+	if !m.exact {
 		c.inexact++
 	}
 }
@@ -326,23 +282,26 @@ func (d *daemon) accept(m *ingest.Measurement, unit []byte) {
 // value and putting its record, with the reference the Validator fixed,
 // into the batch. A characteristic without a configured unit takes the unit
 // its first value names, for display (it is not enforced).
-func (d *daemon) charFor(m *ingest.Measurement, unit []byte) (*liveChar, error) {
-	c := d.chars[m.Characteristic]
-	if c == nil {
-		var err error
-		if c, err = d.newChar(m.Characteristic); err != nil {
-			return nil, err
+func (d *daemon) charFor(b *stageBatch, m *stageItem) (*liveChar, error) {
+	c := d.lastChar
+	if c == nil || c.name != m.char {
+		if c = d.chars[m.char]; c == nil {
+			var err error
+			if c, err = d.newChar(m.char); err != nil {
+				return nil, err
+			}
 		}
+		d.lastChar = c
 	}
 	if !c.stored {
-		c.ref, c.stored = m.Reference, true
+		c.ref, c.stored = m.ref, true
 		if c.unit == "" {
-			c.unit = string(unit)
+			c.unit = strings.Clone(b.string(m.unit)) // not the whole batch's text
 		}
 		d.pend.chars = append(d.pend.chars, store.Characteristic{
-			Name: c.name, Unit: c.unit, Reference: m.Reference.Decimal(), SettingsHash: c.hash, Created: d.now(),
+			Name: c.name, Unit: c.unit, Reference: m.ref.Decimal(), SettingsHash: c.hash, Created: d.now(),
 		})
-		d.log.Info().Str("characteristic", c.name).Str("reference", m.Reference.Decimal().String()).Bool("configured", c.set.Configured).
+		d.log.Info().Str("characteristic", c.name).Str("reference", m.ref.Decimal().String()).Bool("configured", c.set.Configured).
 			Msg("new characteristic")
 	}
 	return c, nil
@@ -410,8 +369,9 @@ func (d *daemon) evaluate(c *liveChar, now time.Time) {
 		note = fmt.Sprintf("incomplete: the core NATS subscription dropped %d messages since the daemon started, the last at %s, because lockstep fell behind; this window may miss values (use JetStream where no loss is acceptable)",
 			c.dropped, c.dropAt.UTC().Format(time.RFC3339))
 	}
-	lr, err := buildLive(liveInput{Name: c.name, Unit: c.unit, Evaluated: now, Eval: ev, Inexact: c.inexact, Incomplete: note})
+	lr, err := buildLive(liveInput{Name: c.name, Unit: c.unit, Evaluated: now, Eval: ev, Inexact: c.inexact, Incomplete: note, Win: c.win, Ref: c.ref})
 	d.met.evalSeconds.Observe(time.Since(t0).Seconds())
+	d.evaluateAlerts(c, ev, now)
 	if err != nil {
 		d.log.Error().Err(err).Str("characteristic", c.name).Msg("report not encoded")
 		return

@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"path/filepath"
 	"slices"
@@ -242,6 +243,9 @@ func TestDaemonSkipsApplied(t *testing.T) {
 	ld.start()
 	waitUntil(t, "ack of 8", func() bool { return ld.src.lastAck() == 8 })
 	waitUntil(t, "ack of 2", func() bool { return ld.src.drained() })
+	// The fetches run ahead of the loop (stage.go): wait for an evaluation
+	// that saw the applied values before stopping.
+	waitUntil(t, "a report of 8 values", func() bool { return reportCount(ld) == 8 })
 	ld.stop(t)
 	if got := ld.met.skipped.Load(); got != 4 {
 		t.Errorf("skipped %d messages; want 4", got)
@@ -252,17 +256,23 @@ func TestDaemonSkipsApplied(t *testing.T) {
 	if got := ld.val.Counters().Accepted(); got != 3 {
 		t.Errorf("accepted %d in the second run; want 3 (6, 7, 8)", got)
 	}
+	if total := reportCount(ld); total != 8 {
+		t.Errorf("report counts %d values; want 8", total)
+	}
+}
+
+// reportCount is the number of values in the latest report of "fill", or -1
+// when there is none.
+func reportCount(ld *loopDaemon) int64 {
 	rep, ok := ld.book.get("fill")
 	if !ok {
-		t.Fatal("no report")
+		return -1
 	}
 	var total int64
 	for _, g := range rep.summary.Groups {
 		total += g.N
 	}
-	if total != 8 {
-		t.Errorf("report counts %d values; want 8", total)
-	}
+	return total
 }
 
 // TestDaemonCommitBySizeAndTime: a full batch is committed at once, a
@@ -334,6 +344,85 @@ func TestDaemonCoreDrops(t *testing.T) {
 	}
 	if n := rawCount(t, ld.st, "seal"); n != 6 {
 		t.Errorf("store holds %d raw values; want 6", n)
+	}
+}
+
+// TestDaemonRestoresIDs: after a restart, a measurement published again
+// with the id of a stored one (a new stream sequence, so the cursor does not
+// skip it) is rejected as duplicate_id, as it was before the restart.
+func TestDaemonRestoresIDs(t *testing.T) {
+	dir := t.TempDir()
+	ld := newLoopDaemon(t, dir, "")
+	ld.src.push(jsMsgs(1, 5)...)
+	ld.start()
+	waitUntil(t, "ack of 5", func() bool { return ld.src.lastAck() == 5 })
+	ld.close(t)
+
+	ld = newLoopDaemon(t, dir, "")
+	again := jsMsgs(3, 3)[0] // id m3, once more
+	again.Seq = 6
+	fresh := jsMsgs(7, 7)[0]
+	ld.src.push(again, fresh)
+	ld.start()
+	waitUntil(t, "ack of 7", func() bool { return ld.src.lastAck() == 7 })
+	ld.stop(t)
+	c := ld.val.Counters()
+	if c.Rejected(ingest.ReasonDuplicateID) != 1 || c.Accepted() != 1 {
+		t.Errorf("after the restart: duplicate_id %d, accepted %d; want 1 and 1", c.Rejected(ingest.ReasonDuplicateID), c.Accepted())
+	}
+	if n := rawCount(t, ld.st, "fill"); n != 6 {
+		t.Errorf("store holds %d raw values; want 6", n)
+	}
+}
+
+// scriptedSource returns its steps in order, a batch or an error each, and
+// then behaves as its fakeSource.
+type scriptedSource struct {
+	*fakeSource
+	steps []any
+}
+
+func (s *scriptedSource) Fetch(ctx context.Context, max int, maxWait time.Duration) ([]ingest.Msg, error) {
+	s.mu.Lock()
+	if len(s.steps) > 0 {
+		step := s.steps[0]
+		s.steps = s.steps[1:]
+		s.mu.Unlock()
+		if err, ok := step.(error); ok {
+			return nil, err
+		}
+		return step.([]ingest.Msg), nil
+	}
+	s.mu.Unlock()
+	return s.fakeSource.Fetch(ctx, max, maxWait)
+}
+
+// TestDaemonSourceErrors: a transient fetch error is retried; a source that
+// closes ends the loop with its error, after the batches fetched before it
+// are applied, committed and acknowledged.
+func TestDaemonSourceErrors(t *testing.T) {
+	ld := newLoopDaemon(t, t.TempDir(), "")
+	closed := fmt.Errorf("fetch from stream: %w: consumer deleted", ingest.ErrSourceClosed)
+	src := &scriptedSource{fakeSource: ld.src, steps: []any{jsMsgs(1, 3), errors.New("timeout"), jsMsgs(4, 6), closed}}
+	ld.daemon.src = src
+	done := make(chan error, 1)
+	go func() { done <- ld.run(context.Background()) }()
+	select {
+	case err := <-done:
+		if !errors.Is(err, ingest.ErrSourceClosed) {
+			t.Errorf("run returned %v; want an error wrapping ErrSourceClosed", err)
+		}
+	case <-time.After(10 * time.Second):
+		t.Fatal("run did not return after the source closed")
+	}
+	if n := rawCount(t, ld.st, "fill"); n != 6 {
+		t.Errorf("store holds %d raw values; want 6", n)
+	}
+	if cur, err := ld.st.Cursor(defaultConsumer); cur != 6 || err != nil {
+		t.Errorf("stored cursor %d (%v); want 6", cur, err)
+	}
+	if got := src.lastAck(); got != 6 {
+		t.Errorf("last ack %d; want 6", got)
 	}
 }
 

@@ -13,7 +13,8 @@ import (
 // newLogger returns the daemon's logger: JSON lines on w, or a readable
 // console format when format is "console", or "auto" and w is a terminal.
 // Components take a child with component(), so that every line says where
-// it comes from under the constant key "component".
+// it comes from under the constant key "component" (and a part of a
+// component under "part", e.g. the daemon's alerts).
 func newLogger(w io.Writer, level, format string) (zerolog.Logger, error) {
 	lvl, err := zerolog.ParseLevel(strings.ToLower(level))
 	if err != nil || level == "" {

@@ -24,6 +24,9 @@ import (
 // The JetStream consumer then redelivers what was not acknowledged, and the
 // cursor skips what was applied: nothing is lost and nothing counted twice.
 func (d *daemon) restore(now time.Time) error {
+	if err := d.alerts.restore(d.st); err != nil {
+		return err
+	}
 	if d.consumer != "" {
 		cur, err := d.st.Cursor(d.consumer)
 		if err != nil {
@@ -40,6 +43,9 @@ func (d *daemon) restore(now time.Time) error {
 		if err := d.restoreChar(rec, now); err != nil {
 			return err
 		}
+	}
+	if err := d.restoreIDs(now); err != nil {
+		return err
 	}
 	// Configured characteristics without data yet are listed too.
 	for name := range d.cfg.Characteristics {
@@ -181,4 +187,26 @@ func (d *daemon) rebuildFromRaw(c *liveChar, from time.Time, states bool) (n, sk
 		return nil
 	})
 	return n, skipped, err
+}
+
+// restoreIDs gives the Validator's duplicate-id memory the ids of each
+// restored characteristic's raw values over the span its window is restored
+// from, oldest first, so that a measurement published again across a
+// restart is still rejected as duplicate_id (within that span, and as far as
+// the memory's size reaches).
+func (d *daemon) restoreIDs(now time.Time) error {
+	var id []byte
+	for _, c := range d.order {
+		w := c.set.Window
+		from := now.Add(-(w.Length + max(w.Lateness, 0) + 2*w.Bucket))
+		err := d.st.Raw(c.name, from, time.Time{}, func(rv store.RawValue) error {
+			id = append(id[:0], rv.ID...)
+			d.val.RememberID(c.name, id)
+			return nil
+		})
+		if err != nil {
+			return fmt.Errorf("restore the recent ids of characteristic %q: %w", c.name, err)
+		}
+	}
+	return nil
 }
