@@ -22,6 +22,8 @@ type Config struct {
 	Store  StoreConfig  `toml:"store"`
 	HTTP   HTTPConfig   `toml:"http"`
 	Log    LogConfig    `toml:"log"`
+	// Alerts are the default alert rule and the alert sinks (alertconfig.go).
+	Alerts AlertsConfig `toml:"alerts"`
 
 	// Defaults are the settings of every characteristic that does not set
 	// its own, including those first seen in the stream.
@@ -127,9 +129,12 @@ type StoreConfig struct {
 // HTTPConfig is the HTTP API.
 type HTTPConfig struct {
 	// Listen is the address of the API and /metrics. Default
-	// 127.0.0.1:8420. The API has no authentication: keep it on loopback
-	// or behind a proxy that has.
+	// 127.0.0.1:8420. Beyond loopback, Token is required.
 	Listen string `toml:"listen"`
+	// Token is the bearer token of the API: writes (acknowledging an
+	// alert) need it whenever it is set, and every request needs it when
+	// Listen is not a loopback address. Prefer LOCKSTEP_HTTP_TOKEN.
+	Token string `toml:"token"`
 }
 
 // LogConfig is the log.
@@ -178,6 +183,8 @@ type CharacteristicConfig struct {
 	// Min and Max bound the plausible range, inclusive.
 	Min *float64 `toml:"min"`
 	Max *float64 `toml:"max"`
+	// Alert is its own alert rule, over [alerts] (alertconfig.go).
+	Alert *AlertRuleConfig `toml:"alert"`
 }
 
 // Duration is a TOML duration string such as "1m30s"; Set tells an
@@ -234,7 +241,10 @@ func DefaultConfig() *Config {
 			CommitInterval: setDuration(defaultCommitInterval),
 		},
 		HTTP: HTTPConfig{Listen: defaultHTTPListen},
-		Log:  LogConfig{Level: "info", Format: "auto"},
+		Alerts: AlertsConfig{
+			SubjectPrefix: defaultRejectPrefix, Retain: setDuration(defaultAlertRetain),
+		},
+		Log: LogConfig{Level: "info", Format: "auto"},
 	}
 }
 
@@ -310,6 +320,7 @@ func envVars() []envVar {
 		{"LOCKSTEP_NATS_TOKEN", "NATS token", func(c *Config, v string) { c.NATS.Token = v }},
 		{"LOCKSTEP_NATS_CREDS", "NATS credentials file (JWT and seed)", func(c *Config, v string) { c.NATS.CredsFile = v }},
 		{"LOCKSTEP_NATS_NKEY", "NATS nkey seed file", func(c *Config, v string) { c.NATS.NKeyFile = v }},
+		{"LOCKSTEP_HTTP_TOKEN", "bearer token of the HTTP API (see [http] token)", func(c *Config, v string) { c.HTTP.Token = v }},
 		{"LOCKSTEP_LOG_LEVEL", "log level", func(c *Config, v string) { c.Log.Level = v }},
 	}
 }

@@ -30,7 +30,7 @@ func TestConfigErrors(t *testing.T) {
 	}{
 		{"unknown key", "[defaults]\nwindow = \"30m\"\n\n[characteristics.fill]\nunit = \"g\"\ncolour = \"red\"\n",
 			[]string{"line 6", "unknown key characteristics.fill.colour"}},
-		{"unknown section", "[nats]\nurl = \"embedded\"\n[alerts]\nx = 1\n", []string{"line 3", "unknown key alerts"}},
+		{"unknown section", "[nats]\nurl = \"embedded\"\n[alarms]\nx = 1\n", []string{"line 3", "unknown key alarms"}},
 		{"two unknown keys", "[store]\npaht = \"x\"\n[http]\nlisten = \"127.0.0.1:1\"\nlisen = \"x\"\n",
 			[]string{"line 2: unknown key store.paht", "line 5: unknown key http.lisen"}},
 		{"quoted name", "[characteristics.\"fill weight\"]\nunti = \"g\"\n", []string{`characteristics."fill weight".unti`}},

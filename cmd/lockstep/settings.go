@@ -233,6 +233,7 @@ func (c *Config) Validate() error {
 	}
 
 	errs = append(errs, checkSettings("[defaults]", c.Defaults, c.settingsFor(""), c)...)
+	errs = append(errs, c.checkAlerts()...)
 	for name, cc := range c.Characteristics {
 		where := fmt.Sprintf("characteristic %q:", name)
 		if p := charNameProblem(name); p != "" {
