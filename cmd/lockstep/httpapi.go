@@ -19,12 +19,26 @@ type apiState struct {
 	reg   *prometheus.Registry
 	ready func() bool
 	log   zerolog.Logger
+	store backupSource // for GET /api/v1/backup; nil: 503
+
+	// The alert API (alertapi.go): the runtime (nil: 503), the bearer
+	// token, and whether the listener is beyond loopback.
+	alerts *alerting
+	token  string
+	remote bool
+
+	// The dashboard's server-sent events (sse.go; nil: 503).
+	stream *streamHub
 }
 
 // newAPIHandler returns the HTTP API:
 //
 //	GET /api/v1/characteristics          every characteristic's state
 //	GET /api/v1/characteristics/{name}   one characteristic's latest report
+//	GET /api/v1/backup                   a consistent copy of the store (backup.go)
+//	GET /api/v1/alerts[/{id}], POST /api/v1/alerts/{id}/ack   alerts (alertapi.go)
+//	GET /api/v1/stream                   server-sent events (sse.go)
+//	GET /, /assets/...                   the dashboard (dashboard.go)
 //	GET /metrics                         Prometheus text format
 //	GET /healthz                         200 while the process serves
 //	GET /readyz                          200 once the state is restored and the first fetch returned
@@ -34,6 +48,9 @@ func newAPIHandler(s apiState) http.Handler {
 	mux := http.NewServeMux()
 	mux.HandleFunc("GET /api/v1/characteristics", s.list)
 	mux.HandleFunc("GET /api/v1/characteristics/{name...}", s.one)
+	mux.HandleFunc("GET /api/v1/backup", s.backup)
+	s.alertRoutes(mux)
+	s.dashboardRoutes(mux) // GET /, /assets/..., /api/v1/stream (dashboard.go)
 	mux.Handle("GET /metrics", promhttp.HandlerFor(s.reg, promhttp.HandlerOpts{
 		ErrorLog: promLog{s.log}, ErrorHandling: promhttp.ContinueOnError,
 	}))
@@ -50,7 +67,7 @@ func newAPIHandler(s apiState) http.Handler {
 	mux.HandleFunc("/", func(w http.ResponseWriter, r *http.Request) {
 		writeError(w, http.StatusNotFound, fmt.Sprintf("no such resource %s %s; see /api/v1/characteristics", r.Method, r.URL.Path))
 	})
-	return mux
+	return s.guard(mux)
 }
 
 func (s apiState) list(w http.ResponseWriter, _ *http.Request) {

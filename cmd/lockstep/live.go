@@ -7,6 +7,7 @@ import (
 	"sync"
 	"time"
 
+	"github.com/lockstep-project/lockstep/stats"
 	"github.com/lockstep-project/lockstep/window"
 )
 
@@ -24,6 +25,9 @@ type jsonLive struct {
 	Counts     []jsonCount `json:"counts"`
 	Silent     []string    `json:"silent"`
 	Incomplete bool        `json:"incomplete"`
+	// Quantiles describe the spread of each analysed group's kept values,
+	// for box plots (quantiles.go); empty when the window keeps no sample.
+	Quantiles []jsonQuantiles `json:"quantiles"`
 }
 
 // jsonWindow bounds an evaluated window: [from, to), and the buckets in it
@@ -57,6 +61,17 @@ type jsonSummary struct {
 	Differ     bool        `json:"differ"`
 	Verdict    string      `json:"verdict"`
 	Incomplete bool        `json:"incomplete"`
+	// What the dashboard's tile shows besides (the report's verdict and
+	// minimum_detectable_shift.largest): the test that decided (F or Welch
+	// F) with its F and p, the groups named with their shifts, the group
+	// whose spread stands out, and the smallest shift of one group alone
+	// that the F test detects with the report's power.
+	Test                   string           `json:"test,omitempty"`
+	TestF                  *float64         `json:"test_f"`
+	TestP                  *float64         `json:"test_p"`
+	Divergent              []jsonDivergence `json:"divergent"`
+	Spread                 *jsonSpread      `json:"spread"`
+	MinimumDetectableShift *float64         `json:"minimum_detectable_shift"`
 }
 
 // liveReport is a characteristic's latest evaluation, ready to serve: never
@@ -75,6 +90,10 @@ type liveInput struct {
 	Eval       window.Evaluation
 	Inexact    int64
 	Incomplete string // why the window may miss values; "" when complete
+	// Win and Ref, when Win is set, give the kept values of the window for
+	// the quantiles (keptValues); nil: no quantiles.
+	Win *window.Window
+	Ref stats.Reference
 }
 
 // buildLive turns an evaluation into a liveReport.
@@ -107,16 +126,22 @@ func buildLive(in liveInput) (*liveReport, error) {
 		}
 		j.Counts[i] = jc
 	}
+	j.Quantiles = groupQuantiles(keptValues(in.Win, ev, in.Ref))
 	detail, err := json.MarshalIndent(j, "", "  ")
 	if err != nil {
 		return nil, err
 	}
+	sum := jsonSummary{
+		Name: in.Name, Unit: in.Unit, Evaluated: j.Evaluated, Window: j.Window, Groups: j.Counts,
+		F: j.Anova.F, P: j.Anova.P, Differ: j.Verdict.Differ, Verdict: j.Verdict.Text, Incomplete: j.Incomplete,
+		Test: j.Verdict.Test, TestF: j.Verdict.F, TestP: j.Verdict.P, Divergent: j.Verdict.Divergent, Spread: j.Verdict.Spread,
+	}
+	if j.Shift != nil {
+		sum.MinimumDetectableShift = j.Shift.Largest
+	}
 	return &liveReport{
-		summary: jsonSummary{
-			Name: in.Name, Unit: in.Unit, Evaluated: j.Evaluated, Window: j.Window, Groups: j.Counts,
-			F: j.Anova.F, P: j.Anova.P, Differ: j.Verdict.Differ, Verdict: j.Verdict.Text, Incomplete: j.Incomplete,
-		},
-		detail: append(detail, '\n'),
+		summary: sum,
+		detail:  append(detail, '\n'),
 	}, nil
 }
 
@@ -125,6 +150,10 @@ func buildLive(in liveInput) (*liveReport, error) {
 type reportBook struct {
 	mu      sync.RWMutex
 	reports map[string]*liveReport
+	// onPut, when set before the loop starts, is called with the summary of
+	// every report put, after it is in the book, on the putting goroutine:
+	// the server-sent events (sse.go). It must return quickly.
+	onPut func(jsonSummary)
 }
 
 func newReportBook() *reportBook { return &reportBook{reports: make(map[string]*liveReport)} }
@@ -134,6 +163,9 @@ func (b *reportBook) put(r *liveReport) {
 	b.mu.Lock()
 	b.reports[r.summary.Name] = r
 	b.mu.Unlock()
+	if b.onPut != nil {
+		b.onPut(r.summary)
+	}
 }
 
 // get returns the latest report of name.

@@ -29,9 +29,17 @@ type command interface {
 
 func commands(stdin io.Reader, stdout, stderr io.Writer) map[string]command {
 	return map[string]command{
-		"check":    &CheckCommand{Stdin: stdin, Stdout: stdout, Stderr: stderr},
-		"run":      &RunCommand{Stdout: stdout, Stderr: stderr},
-		"simulate": &SimulateCommand{Stdout: stdout, Stderr: stderr},
+		"check":     &CheckCommand{Stdin: stdin, Stdout: stdout, Stderr: stderr},
+		"run":       &RunCommand{Stdout: stdout, Stderr: stderr},
+		"simulate":  &SimulateCommand{Stdout: stdout, Stderr: stderr},
+		"calibrate": &CalibrateCommand{Stdout: stdout, Stderr: stderr},
+		"replay":    &ReplayCommand{Stdout: stdout, Stderr: stderr},
+		"plot":      &PlotCommand{Stdout: stdout, Stderr: stderr},
+		"export":    &ExportCommand{Stdout: stdout, Stderr: stderr},
+		"backup":    &BackupCommand{Stdout: stdout, Stderr: stderr},
+		"verify":    &VerifyCommand{Stdout: stdout, Stderr: stderr},
+		"alerts":    &AlertsCommand{Stdout: stdout, Stderr: stderr},
+		"demo":      &DemoCommand{Stdout: stdout, Stderr: stderr},
 	}
 }
 
@@ -46,12 +54,23 @@ Usage:
   lockstep <command> [options]
 
 Commands:
+  demo      see everything at work: embedded NATS, the daemon, a simulated
+            coffee plant and the shift dashboard, in one command
   check     analyse a CSV file of measurements (one-way analysis of variance,
             Welch, spread and rank tests, pairs, analysis of means)
   run       run the daemon: measurements from NATS, rolling windows, durable
             state, an HTTP API and Prometheus metrics
   simulate  publish the measurements of an invented plant to NATS, for trying
             lockstep out, demonstrations and load tests
+  replay    re-run the evaluations of a stored period, optionally with other
+            settings: one row per evaluation, a summary, a chart
+  plot      draw one stored window: box plots with analysis-of-means limits
+  export    write a characteristic's stored raw measurements as CSV
+  backup    copy the live store through the daemon, or a stopped daemon's file
+  verify    check a store file's integrity and schema version
+  alerts    list the daemon's alerts, or acknowledge one
+  calibrate measure alert settings on simulated streams: false raises per
+            shift and per 30 days, time to raise, per-group baselines
   version   print the version
   help      print this help, or "lockstep help <command>" for one command
 

@@ -29,8 +29,13 @@ type RunCommand struct {
 	Getenv func(string) string
 
 	// started, when set, is called once the daemon has restored its state
-	// and serves HTTP, just before the loop starts (for tests).
+	// and serves HTTP, just before the loop starts (for tests and lockstep
+	// demo).
 	started func(runInfo)
+	// clock, when set, is the daemon's clock instead of time.Now: lockstep
+	// demo's simulated time (demo.go). It stamps arrivals, evaluations and
+	// alerts.
+	clock func() time.Time
 }
 
 // runInfo says where a running daemon can be reached.
@@ -58,6 +63,12 @@ evaluates each characteristic's window on an interval and serves the reports:
   GET /api/v1/characteristics/NAME    its latest report (the fields of
                                       lockstep check --json, plus window,
                                       counts, silent and incomplete)
+  GET /api/v1/alerts                  open alerts (?state=all: with the
+                                      recently cleared); /api/v1/alerts/ID one
+  POST /api/v1/alerts/ID/ack          acknowledge: {"by": "...", "note": "..."}
+                                      (see lockstep alerts --help)
+  GET /                               the shift dashboard (see lockstep demo)
+  GET /api/v1/stream                  server-sent events: summaries, alert events
   GET /metrics                        Prometheus metrics
   GET /healthz, /readyz               liveness, readiness
 
@@ -86,7 +97,8 @@ Options (over the config file, which is over the defaults):
                          (always done with the embedded server)
   --subjects PATTERN     subject filter (default meas.>)
   --store FILE           state file (default lockstep.db)
-  --http HOST:PORT       API and /metrics address (default 127.0.0.1:8420; no authentication)
+  --http HOST:PORT       API and /metrics address (default 127.0.0.1:8420); beyond
+                         loopback every request needs LOCKSTEP_HTTP_TOKEN
   --bucket D             default bucket width (default 1m)
   --window D             default window length, a multiple of the bucket (default 30m)
   --evaluate-every D     default interval between evaluations (default 10s)
@@ -190,6 +202,9 @@ func (c *RunCommand) config(args []string) (*Config, error) {
 	if err := cfg.Validate(); err != nil {
 		return nil, fmt.Errorf("check config: %w", err)
 	}
+	if err := checkHTTPToken(cfg); err != nil {
+		return nil, err
+	}
 	return cfg, nil
 }
 
@@ -202,6 +217,7 @@ type services struct {
 	src      ingest.Source
 	dead     *ingest.DeadLetters
 	st       *store.Store
+	alerts   *alerting
 }
 
 // serve starts everything, runs the loop and shuts down.
@@ -222,20 +238,30 @@ func (c *RunCommand) serve(ctx context.Context, cfg *Config, log zerolog.Logger)
 	sv.st = st
 	d := newDaemon(cfg, st, dlog)
 	met, book := d.met, d.book
+	if c.clock != nil {
+		d.now, d.alerts.now = c.clock, c.clock
+	}
+	// The dashboard's server-sent events (sse.go): every report put and
+	// every alert event.
+	hub := newStreamHub(streamOptions{}, met.reg)
+	book.onPut, d.alerts.alertHook = hub.summary, hub.alert
 
 	ln, err := net.Listen("tcp", cfg.HTTP.Listen)
 	if err != nil {
 		return fmt.Errorf("listen for HTTP on %s: %w", cfg.HTTP.Listen, err)
 	}
 	hlog := component(log, "http")
-	sv.http = newHTTPServer(newAPIHandler(apiState{book: book, reg: met.reg, ready: d.ready.Load, log: hlog}), hlog)
+	host, _, _ := net.SplitHostPort(cfg.HTTP.Listen)
+	sv.http = newHTTPServer(newAPIHandler(apiState{book: book, reg: met.reg, ready: d.ready.Load, log: hlog, store: st,
+		alerts: d.alerts, token: cfg.HTTP.Token, remote: !isLoopback(host), stream: hub}), hlog)
+	sv.http.RegisterOnShutdown(hub.close) // Shutdown waits for idle connections; a stream never is
 	go func() {
 		if err := sv.http.Serve(ln); err != nil && !errors.Is(err, http.ErrServerClosed) {
 			hlog.Error().Err(err).Msg("HTTP server stopped")
 		}
 	}()
-	if host, _, _ := net.SplitHostPort(cfg.HTTP.Listen); !isLoopback(host) {
-		hlog.Warn().Str("listen", cfg.HTTP.Listen).Msg("the API has no authentication and listens beyond loopback")
+	if !isLoopback(host) {
+		hlog.Warn().Str("listen", cfg.HTTP.Listen).Msg("the API listens beyond loopback: every request needs the bearer token")
 	}
 
 	if d.val, err = ingest.NewValidator(validatorConfig(cfg)); err != nil {
@@ -260,7 +286,7 @@ func (c *RunCommand) serve(ctx context.Context, cfg *Config, log zerolog.Logger)
 	if err != nil {
 		return err
 	}
-	if sv.src, err = openSource(ctx, cfg, sv.nc, sv.embedded != nil, log); err != nil {
+	if sv.src, err = openSource(ctx, cfg, sv.nc, sv.embedded != nil, d.now, log); err != nil {
 		return err
 	}
 	d.src = sv.src
@@ -273,6 +299,10 @@ func (c *RunCommand) serve(ctx context.Context, cfg *Config, log zerolog.Logger)
 		return err
 	}
 	d.dead = sv.dead
+	if err := d.alerts.startSinks(sv.nc); err != nil {
+		return err
+	}
+	sv.alerts = d.alerts
 	met.watch(d.val.Counters(), sv.src, sv.dead)
 
 	log.Info().Str("http", ln.Addr().String()).Str("nats", sv.nc.ConnectedUrlRedacted()).Str("source", cfg.NATS.Source).
@@ -309,12 +339,13 @@ func defaultNATSData(storePath string) string {
 
 // openSource subscribes: a durable JetStream consumer or a core
 // subscription.
-func openSource(ctx context.Context, cfg *Config, nc *nats.Conn, embedded bool, log zerolog.Logger) (ingest.Source, error) {
+// now stamps arrivals.
+func openSource(ctx context.Context, cfg *Config, nc *nats.Conn, embedded bool, now func() time.Time, log zerolog.Logger) (ingest.Source, error) {
 	n := &cfg.NATS
 	// A failed constructor returns a nil pointer; returning it as the
 	// interface would make a non-nil Source whose Close panics.
 	if n.Source == "core" {
-		src, err := ingest.NewCoreSource(nc, n.Subjects, ingest.CoreOptions{PendingMsgs: n.PendingMsgs, PendingBytes: n.PendingBytes, Logger: log})
+		src, err := ingest.NewCoreSource(nc, n.Subjects, ingest.CoreOptions{PendingMsgs: n.PendingMsgs, PendingBytes: n.PendingBytes, Logger: log, Now: now})
 		if err != nil {
 			return nil, err
 		}
@@ -328,10 +359,11 @@ func openSource(ctx context.Context, cfg *Config, nc *nats.Conn, embedded bool, 
 		Stream: n.Stream, Durable: n.Consumer, FilterSubjects: []string{n.Subjects},
 		CreateStream: embedded || n.CreateStream,
 		Batch:        batch,
-		// Room for the batches pulled ahead and several commits' worth.
-		MaxAckPending: max(10*batch, 4*cfg.Store.CommitValues),
+		// Room for everything the daemon holds unacknowledged (commit.go).
+		MaxAckPending: jsMaxAckPending(batch, cfg.Store.CommitValues),
 		AckWait:       n.AckWait.D,
 		Logger:        log,
+		Now:           now,
 	})
 	if err != nil {
 		return nil, err
@@ -419,6 +451,9 @@ func (s *services) close() error {
 	}
 	if s.src != nil {
 		add("close source", s.src.Close())
+	}
+	if s.alerts != nil {
+		add("deliver alert events to the webhook", s.alerts.close(ctx))
 	}
 	if s.dead != nil {
 		add("flush dead letters", s.dead.Close(ctx))
