@@ -86,6 +86,17 @@ type Config struct {
 	// a stratified sample, not a uniform one over the window.
 	Sample int
 
+	// Keep is how long before the window's oldest bucket the buckets that
+	// leave the window are kept, for SpanSums and EndedSums only (never for
+	// Sums or Evaluate). A span of the window's own length that leaves out
+	// the open bucket reaches one bucket before the window: with Keep of
+	// one Bucket, a 30-minute span of a 30-minute window holds 30 whole
+	// minutes. Default 0; a multiple of Bucket, at most MaxDuration. The
+	// kept buckets cost what as many window buckets cost; they are not in
+	// Buckets (so not restored after a restart until they are lived
+	// again).
+	Keep time.Duration
+
 	// Count > 0 makes the window count-based: the last Count values of each
 	// group, in arrival order, for slow lines; Bucket and Length are then
 	// not used (but still validated). Zero: time-based. At most MaxCount.
@@ -134,6 +145,14 @@ func (c Config) Validate() error {
 		bad("window length %v exceeds the limit of %v", c.Length, MaxDuration)
 	case c.Bucket > 0 && c.Length%c.Bucket != 0:
 		bad("window length %v is not a multiple of the bucket %v", c.Length, c.Bucket)
+	}
+	switch {
+	case c.Keep < 0:
+		bad("keep %v is negative", c.Keep)
+	case c.Keep > MaxDuration:
+		bad("keep %v exceeds the limit of %v", c.Keep, MaxDuration)
+	case c.Bucket > 0 && c.Keep%c.Bucket != 0:
+		bad("keep %v is not a multiple of the bucket %v", c.Keep, c.Bucket)
 	}
 	if c.Length > 0 && c.Lateness >= c.Length {
 		bad("allowed lateness %v is not shorter than the window length %v", c.Lateness, c.Length)

@@ -13,7 +13,8 @@ import (
 // the same stretch of time whatever the phase of the evaluation within its
 // bucket: a 1-minute span evaluated 10 s into a minute is the whole previous
 // minute, not 10 s of values. A length shorter than a bucket counts as one
-// bucket; one longer than the window is cut to the buckets the window keeps.
+// bucket; one longer than the window is cut to the buckets the window keeps
+// (its own and, with Config.Keep, those that left it within Keep).
 //
 // It merges the buckets one by one, O(groups × buckets in the span), which
 // is fine for spans of a few dozen buckets; for the whole window use Sums.
@@ -81,9 +82,14 @@ func (w *Window) EndedSums(after, now time.Time, dst []stats.Accumulator) []stat
 	return dst
 }
 
-// mergeRange merges into dst every bucket kept (closed or open) whose
-// number is in [from, to).
+// mergeRange merges into dst every bucket kept (retired, closed or open)
+// whose number is in [from, to).
 func (w *Window) mergeRange(dst []stats.Accumulator, from, to int64) {
+	for _, b := range w.retired {
+		if b.idx >= from && b.idx < to {
+			mergeInto(dst, b.acc)
+		}
+	}
 	for i := w.closed.h; i < len(w.closed.q); i++ {
 		b := w.closed.q[i]
 		if b.idx >= from && b.idx < to {

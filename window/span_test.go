@@ -132,3 +132,44 @@ func TestSpanSumsCountBased(t *testing.T) {
 		t.Errorf("count-based EndedSums: %+v, want empty", got[0])
 	}
 }
+
+// TestSpanSumsKeep: a span of the window's own length, which leaves out the
+// open bucket, reaches one bucket before the window. Without Keep that
+// bucket is gone and the span holds Length − Bucket of values; with Keep of
+// one bucket it holds the whole Length. Keep changes neither Sums nor
+// Evaluate, and keeps no more than Keep of retired buckets.
+func TestSpanSumsKeep(t *testing.T) {
+	const n = 40 // minutes 0..39 hold values 0..39
+	for _, tc := range []struct {
+		keep time.Duration
+		want []float64 // L1's values in the 5-minute span at 40:00
+	}{
+		{0, []float64{36, 37, 38, 39}},
+		{time.Minute, []float64{35, 36, 37, 38, 39}},
+		{3 * time.Minute, []float64{35, 36, 37, 38, 39}},
+	} {
+		w := newWindow(t, Config{Bucket: time.Minute, Length: 5 * time.Minute, Lateness: -1, Keep: tc.keep}, "L1", "L2")
+		minuteValues(t, w, n)
+		now := at(n * time.Minute)
+		sums := w.Sums(now, nil)
+		if want := accOfValues(36, 37, 38, 39); sums[0].N != want.N || !closeTo(sums[0].Mean, want.Mean) {
+			t.Errorf("keep %v: Sums %+v, want %+v (Keep must not reach the window's sums)", tc.keep, sums[0], want)
+		}
+		got := w.SpanSums(now, 5*time.Minute, nil)
+		if want := accOfValues(tc.want...); got[0].N != want.N || !closeTo(got[0].Mean, want.Mean) || !closeTo(got[0].M2, want.M2) {
+			t.Errorf("keep %v: SpanSums %+v, want %+v", tc.keep, got[0], want)
+		}
+		if long := w.SpanSums(now, 8*time.Minute, nil); long[0].N != int64(4+tc.keep/time.Minute) {
+			t.Errorf("keep %v: an 8-minute span holds %d values, want %d (the window's 4 whole buckets and Keep's)", tc.keep, long[0].N, 4+tc.keep/time.Minute)
+		}
+		if int64(len(w.retired)) > w.keepN {
+			t.Errorf("keep %v: %d retired buckets, more than %d", tc.keep, len(w.retired), w.keepN)
+		}
+	}
+	if err := (Config{Bucket: time.Minute, Keep: 90 * time.Second}).Validate(); err == nil {
+		t.Error("Keep of 1m30s with 1-minute buckets validated; want an error")
+	}
+	if err := (Config{Keep: -time.Minute}).Validate(); err == nil {
+		t.Error("a negative Keep validated; want an error")
+	}
+}

@@ -92,7 +92,11 @@ type Window struct {
 	closed queue
 	open   []*bucket // open buckets, by bucket number
 	free   []*bucket // evicted buckets, for reuse
-	cur    *bucket   // the bucket Add used last, if still open
+	// retired are the buckets that left the window and are kept for
+	// Config.Keep (keepN buckets), oldest first; only spans read them.
+	retired []*bucket
+	keepN   int64
+	cur     *bucket // the bucket Add used last, if still open
 
 	// restoring collects the buckets Restore loads until settle sorts them
 	// into closed and open.
@@ -120,6 +124,7 @@ func New(cfg Config) (*Window, error) {
 		lateNs:   max(int64(cfg.Lateness), 0),
 		silentNs: int64(cfg.SilentAfter),
 		sample:   max(cfg.Sample, 0),
+		keepN:    int64(cfg.Keep / cfg.Bucket),
 		index:    make(map[string]int),
 	}
 	return w, nil
@@ -290,13 +295,35 @@ func (w *Window) advance() {
 	}
 	from := w.fromIdx(minTime)
 	for w.closed.len() > 0 && w.closed.oldest().idx < from {
-		w.free = append(w.free, w.closed.pop(len(w.names)))
+		w.retire(w.closed.pop(len(w.names)))
 	}
 	n := 0
 	for n < len(w.open) && w.open[n].idx < from {
 		n++
 	}
-	w.dropOpen(n, true)
+	for _, b := range w.open[:n] {
+		w.retire(b)
+	}
+	w.dropOpen(n, false)
+	k := 0
+	for k < len(w.retired) && w.retired[k].idx < from-w.keepN {
+		k++
+	}
+	if k > 0 {
+		w.free = append(w.free, w.retired[:k]...)
+		m := copy(w.retired, w.retired[k:])
+		clear(w.retired[m:])
+		w.retired = w.retired[:m]
+	}
+}
+
+// retire keeps b, which left the window, for Config.Keep, or recycles it.
+func (w *Window) retire(b *bucket) {
+	if w.keepN == 0 {
+		w.free = append(w.free, b)
+		return
+	}
+	w.retired = append(w.retired, b)
 }
 
 // dropOpen removes the n oldest open buckets, recycling them if asked.

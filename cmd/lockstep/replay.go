@@ -217,6 +217,16 @@ func (c *ReplayCommand) Run(ctx context.Context, args []string) error {
 		return err
 	}
 	spec.Source = source
+	rule, err := cfg.alertRule(spec.Characteristic)
+	if err != nil {
+		return err
+	}
+	if err := rf.apply(&rule); err != nil {
+		return err
+	}
+	// The alert spans of the (what-if) rule over the (what-if) window, as
+	// the daemon keeps them.
+	spec.Window.Keep = spanKeep(rule, spec.Window)
 	path := f.storePath
 	if path == "" {
 		path = cfg.Store.Path
@@ -249,13 +259,6 @@ func (c *ReplayCommand) Run(ctx context.Context, args []string) error {
 	}
 	bar := c.progress(plan.Evaluations)
 	var tally replay.Tally
-	rule, err := cfg.alertRule(spec.Characteristic)
-	if err != nil {
-		return err
-	}
-	if err := rf.apply(&rule); err != nil {
-		return err
-	}
 	alerts, err := newReplayAlerts(spec.Characteristic, unit, rule, stats.NewReference(plan.Record.Reference))
 	if err != nil {
 		return err

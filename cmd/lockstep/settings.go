@@ -13,6 +13,7 @@ import (
 
 	"github.com/rs/zerolog"
 
+	"github.com/lockstep-project/lockstep/alert"
 	"github.com/lockstep-project/lockstep/ingest"
 	"github.com/lockstep-project/lockstep/stats"
 	"github.com/lockstep-project/lockstep/window"
@@ -56,7 +57,26 @@ func (c *Config) settingsFor(name string) charSettings {
 			s.Nominal = &d
 		}
 	}
+	if r, err := c.alertRule(name); err == nil {
+		s.Window.Keep = spanKeep(r, s.Window)
+	}
 	return s
+}
+
+// spanKeep is the window.Config.Keep the alert detectors of rule r need:
+// each window F span is the last whole buckets before now, so a span as long
+// as the window reaches one bucket before it, and a longer one further.
+// Keep holds those buckets (a multiple of the bucket, 0 when none is needed).
+func spanKeep(r alert.Rule, w window.Config) time.Duration {
+	if w.Bucket <= 0 || w.Count > 0 {
+		return 0
+	}
+	var keep time.Duration
+	for _, d := range r.Windows {
+		n := max(d.Length/w.Bucket, 1) // buckets in the span, as alertinput.go counts them
+		keep = max(keep, (n+1)*w.Bucket-w.Length)
+	}
+	return keep
 }
 
 // overlay takes the fields that o sets. An explicit zero switches lateness,
