@@ -413,7 +413,7 @@ func (f *ruleFlags) register(fs *flag.FlagSet) {
 func (f *ruleFlags) apply(r *alert.Rule) error {
 	if f.significance != 0 {
 		if !(f.significance > 0 && f.significance < 1) {
-			return fmt.Errorf("%w: --significance %v: give a false-alarm budget between 0 and 1, such as 2.5e-5", errUsage, f.significance)
+			return fmt.Errorf("%w: --significance %v: give a false-alarm budget between 0 and 1, such as 4e-5", errUsage, f.significance)
 		}
 		r.Alpha = f.significance
 	}
