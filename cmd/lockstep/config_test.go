@@ -101,8 +101,12 @@ func TestConfigSample(t *testing.T) {
 	if cap := cfg.settingsFor("cap-torque"); cap.Window.Count != 50 {
 		t.Errorf("cap-torque window %+v", cap.Window)
 	}
+	// Keep: the default rule's 30-minute alert span is the 30 whole
+	// buckets before now, one more than the window holds besides the open
+	// one (see spanKeep).
 	if other := cfg.settingsFor("other"); other.Configured || other.Window != (window.Config{
 		Bucket: time.Minute, Length: 30 * time.Minute, Lateness: time.Minute, SilentAfter: 10 * time.Minute, Sample: 64,
+		Keep: time.Minute,
 	}) || other.EvaluateEvery != 10*time.Second {
 		t.Errorf("unconfigured settings %+v", other)
 	}
@@ -129,7 +133,10 @@ nominal = 12.50
 		t.Fatal(err)
 	}
 	a := cfg.settingsFor("a")
-	want := window.Config{Bucket: 10 * time.Second, Length: time.Minute, Lateness: -1, SilentAfter: -1, Sample: -1}
+	// Keep: the default rule's 30-minute alert span needs 180 whole
+	// 10-s buckets before now; the 1-minute window holds 5 of them besides
+	// the open one: 175 more, 29m10s.
+	want := window.Config{Bucket: 10 * time.Second, Length: time.Minute, Lateness: -1, SilentAfter: -1, Sample: -1, Keep: 29*time.Minute + 10*time.Second}
 	if a.Window != want || a.Stats.Alpha != 0.01 || a.Stats.Power != 0.9 || a.EvaluateEvery != 2*time.Second {
 		t.Errorf("settings of a: %+v; want window %+v, alpha 0.01, power 0.9, every 2s", a, want)
 	}
