@@ -15,25 +15,7 @@ import (
 func BenchmarkCheck(b *testing.B) {
 	for _, size := range []int{10000, 100000} {
 		b.Run(fmt.Sprintf("mem%dk", size/1000), func(b *testing.B) {
-			ref, _ := stats.ParseDecimal("500")
-			r := stats.NewReference(ref)
-			v, err := NewValidator(ValidatorConfig{
-				Characteristics: map[string]CharacteristicRules{"fill-weight": {Unit: "g", Min: ptr(400), Max: ptr(600), Reference: &r}},
-				IDMemory:        size,
-			})
-			if err != nil {
-				b.Fatal(err)
-			}
-			msgs := idMessages(3 * size)
-			ps := make([]Payload, len(msgs))
-			var d Decoder
-			for i, msg := range msgs {
-				got, err := d.Decode(msg)
-				if err != nil || len(got) != 1 {
-					b.Fatal(i, err)
-				}
-				ps[i] = got[0] // views into msg: no escapes
-			}
+			v, ps := checkBench(b, size)
 			subject := []byte("meas.fill-weight.L3")
 			var m Measurement
 			b.ReportAllocs()
@@ -47,6 +29,33 @@ func BenchmarkCheck(b *testing.B) {
 			}
 		})
 	}
+}
+
+// checkBench returns a Validator with every check active on fill-weight
+// and a duplicate-id memory of size ids, and three times size payloads with
+// distinct ids, decoded beforehand (views into their messages: no escapes).
+func checkBench(b *testing.B, size int) (*Validator, []Payload) {
+	b.Helper()
+	ref, _ := stats.ParseDecimal("500")
+	r := stats.NewReference(ref)
+	v, err := NewValidator(ValidatorConfig{
+		Characteristics: map[string]CharacteristicRules{"fill-weight": {Unit: "g", Min: ptr(400), Max: ptr(600), Reference: &r}},
+		IDMemory:        size,
+	})
+	if err != nil {
+		b.Fatal(err)
+	}
+	msgs := idMessages(3 * size)
+	ps := make([]Payload, len(msgs))
+	var d Decoder
+	for i, msg := range msgs {
+		got, err := d.Decode(msg)
+		if err != nil || len(got) != 1 {
+			b.Fatal(i, err)
+		}
+		ps[i] = got[0]
+	}
+	return v, ps
 }
 
 // BenchmarkMatch matches a subject against the default template and

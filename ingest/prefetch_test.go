@@ -4,8 +4,6 @@ import (
 	"fmt"
 	"strconv"
 	"testing"
-
-	"github.com/lockstep-project/lockstep/stats"
 )
 
 // TestPrefetchChangesNothing: the same messages, with duplicates, rejects
@@ -78,25 +76,7 @@ func TestPrefetchChangesNothing(t *testing.T) {
 func BenchmarkCheckPrefetch(b *testing.B) {
 	for _, size := range []int{10000, 100000} {
 		b.Run(fmt.Sprintf("mem%dk", size/1000), func(b *testing.B) {
-			ref, _ := stats.ParseDecimal("500")
-			r := stats.NewReference(ref)
-			v, err := NewValidator(ValidatorConfig{
-				Characteristics: map[string]CharacteristicRules{"fill-weight": {Unit: "g", Min: ptr(400), Max: ptr(600), Reference: &r}},
-				IDMemory:        size,
-			})
-			if err != nil {
-				b.Fatal(err)
-			}
-			msgs := idMessages(3 * size)
-			ps := make([]Payload, len(msgs))
-			var d Decoder
-			for i, msg := range msgs {
-				got, err := d.Decode(msg)
-				if err != nil || len(got) != 1 {
-					b.Fatal(i, err)
-				}
-				ps[i] = got[0]
-			}
+			v, ps := checkBench(b, size)
 			subject := []byte("meas.fill-weight.L3")
 			var m Measurement
 			var sink uint64

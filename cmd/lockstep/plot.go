@@ -93,19 +93,11 @@ func (c *PlotCommand) Run(ctx context.Context, args []string) error {
 		return err
 	}
 	spec.Step = max(spec.Window.Bucket, time.Second) // one evaluation; a bucket keeps a bucket-state replay valid
-	path := f.storePath
-	if path == "" {
-		path = cfg.Store.Path
-	}
-	st, err := readOnlyStore(path, "plot")
+	st, plan, err := f.plan(cfg, spec, "plot")
 	if err != nil {
 		return err
 	}
 	defer st.Close()
-	plan, err := replay.NewPlan(st, spec)
-	if err != nil {
-		return err
-	}
 	var ev replay.Eval
 	if err := plan.Run(ctx, func(e replay.Eval) error { ev = e; return nil }); err != nil {
 		return err

@@ -171,6 +171,25 @@ func (f *replayFlags) spec(cfg *Config, needRange bool) (replay.Spec, charSettin
 	return s, set, nil
 }
 
+// plan opens the store of --store (else the config's) read-only, for the
+// command what, and plans spec over it; the caller closes the store.
+func (f *replayFlags) plan(cfg *Config, spec replay.Spec, what string) (*store.Store, *replay.Plan, error) {
+	path := f.storePath
+	if path == "" {
+		path = cfg.Store.Path
+	}
+	st, err := readOnlyStore(path, what)
+	if err != nil {
+		return nil, nil, err
+	}
+	plan, err := replay.NewPlan(st, spec)
+	if err != nil {
+		st.Close()
+		return nil, nil, err
+	}
+	return st, plan, nil
+}
+
 // Run parses the options and replays.
 func (c *ReplayCommand) Run(ctx context.Context, args []string) error {
 	fs := newFlagSet("replay")
@@ -227,19 +246,11 @@ func (c *ReplayCommand) Run(ctx context.Context, args []string) error {
 	// The alert spans of the (what-if) rule over the (what-if) window, as
 	// the daemon keeps them.
 	spec.Window.Keep = spanKeep(rule, spec.Window)
-	path := f.storePath
-	if path == "" {
-		path = cfg.Store.Path
-	}
-	st, err := readOnlyStore(path, "replay")
+	st, plan, err := f.plan(cfg, spec, "replay")
 	if err != nil {
 		return err
 	}
 	defer st.Close()
-	plan, err := replay.NewPlan(st, spec)
-	if err != nil {
-		return err
-	}
 	unit := plan.Record.Unit
 	if set.Unit != "" {
 		unit = set.Unit
