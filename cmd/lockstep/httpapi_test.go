@@ -15,27 +15,12 @@ import (
 
 	"github.com/lockstep-project/lockstep/ingest"
 	"github.com/lockstep-project/lockstep/stats"
-	"github.com/lockstep-project/lockstep/window"
 )
 
 // testAPI serves a book with one evaluated characteristic, fill-weight.
 func testAPI(t *testing.T) (*httptest.Server, *atomic.Bool, *metrics) {
 	t.Helper()
-	w, err := window.New(window.Config{})
-	if err != nil {
-		t.Fatal(err)
-	}
-	t0 := time.Date(2026, 3, 1, 8, 0, 0, 0, time.UTC)
-	for i := range 30 {
-		g := w.Group([]string{"L1", "L2", "L3"}[i%3])
-		w.Add(g, t0.Add(time.Duration(i)*time.Second), float64(i%7)*0.01+float64(i%3)*0.02)
-	}
-	ref := stats.NewReference(mustDecimal(t, "500.00"))
-	ev := w.Evaluate(t0.Add(time.Minute), stats.DefaultOptions(), ref)
-	lr, err := buildLive(liveInput{Name: "fill-weight", Unit: "g", Evaluated: t0.Add(time.Minute), Eval: ev})
-	if err != nil {
-		t.Fatal(err)
-	}
+	lr := testLive(t)
 	book := newReportBook()
 	book.put(lr)
 	met := newMetrics()
