@@ -25,7 +25,10 @@ package main
 //	go test -run '^$' -bench 'E2E' -benchtime 3x ./cmd/lockstep
 //
 // and read the metrics ceiling-msg/s, daemon-msg/s and ratio (medians over
-// the rounds). The daemon's progress is read by polling (its /metrics for
+// the rounds), and beside them the CPU this process (NATS server,
+// publisher and consumer together) spent per message in each kind of
+// round, and how many cores it kept busy: when that is the machine's CPU
+// count, the ratio is set by CPU per message, not by any one goroutine. The daemon's progress is read by polling (its /metrics for
 // core, the consumer's ack floor for JetStream) with the crossing times
 // interpolated between polls; the ceilings stamp their own.
 
@@ -37,6 +40,7 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"runtime"
 	"slices"
 	"strconv"
 	"strings"
@@ -258,6 +262,40 @@ func (d *inProcDaemon) checkAllAdded(tb testing.TB, n int) {
 	}
 }
 
+// roundResult is one timed round: the rate between the 5 % and 95 % marks,
+// and the CPU the whole process (NATS server, publisher and consumer
+// alike) used over the round, per message and per second of wall time.
+type roundResult struct {
+	rate      float64 // messages per second
+	cpuPerMsg float64 // µs of CPU per message
+	cores     float64 // CPU seconds per wall second: 2 on a busy 2-CPU machine
+}
+
+// cpuMeter measures a round's CPU time and wall time.
+type cpuMeter struct {
+	cpu0 time.Duration
+	t0   time.Time
+	ok   bool
+}
+
+func startCPU() cpuMeter {
+	c, ok := processCPU()
+	return cpuMeter{cpu0: c, t0: time.Now(), ok: ok}
+}
+
+// result completes r with the CPU used since the meter started, over n
+// messages.
+func (m cpuMeter) result(rate float64, n int) roundResult {
+	r := roundResult{rate: rate}
+	c, ok := processCPU()
+	wall := time.Since(m.t0)
+	if m.ok && ok && n > 0 && wall > 0 {
+		r.cpuPerMsg = float64((c - m.cpu0).Microseconds()) / float64(n)
+		r.cores = (c - m.cpu0).Seconds() / wall.Seconds()
+	}
+	return r
+}
+
 // median returns the median of xs (xs is sorted in place).
 func median(xs []float64) float64 {
 	slices.Sort(xs)
@@ -271,15 +309,32 @@ func median(xs []float64) float64 {
 	return (xs[n/2-1] + xs[n/2]) / 2
 }
 
-// report reports the medians and their ratio.
-func report(b *testing.B, ceiling, daemon []float64, target float64) {
-	c, d := median(ceiling), median(daemon)
+// report reports the medians and their ratio, and the CPU figures: when
+// the cores are busy (cores near the machine's CPU count) the ratio is one
+// of CPU per message, since server, publisher and consumer share them.
+func report(b *testing.B, ceiling, daemon []roundResult, target float64) {
+	med := func(rs []roundResult, f func(roundResult) float64) float64 {
+		xs := make([]float64, len(rs))
+		for i, r := range rs {
+			xs[i] = f(r)
+		}
+		return median(xs)
+	}
+	rate := func(r roundResult) float64 { return r.rate }
+	cpu := func(r roundResult) float64 { return r.cpuPerMsg }
+	cores := func(r roundResult) float64 { return r.cores }
+	c, d := med(ceiling, rate), med(daemon, rate)
 	b.ReportMetric(c, "ceiling-msg/s")
 	b.ReportMetric(d, "daemon-msg/s")
 	if c > 0 {
 		b.ReportMetric(d/c, "ratio")
 	}
+	cc, dc := med(ceiling, cpu), med(daemon, cpu)
+	b.ReportMetric(cc, "ceiling-cpu-µs/msg")
+	b.ReportMetric(dc, "daemon-cpu-µs/msg")
 	b.Logf("rounds: ceiling %.0f msg/s, daemon %.0f msg/s (median of %d), ratio %.3f (target ≥ %.2f)", c, d, len(daemon), d/c, target)
+	b.Logf("process CPU per message (server, publisher, consumer): ceiling %.2f µs, daemon %.2f µs; cores busy: ceiling %.2f, daemon %.2f of %d",
+		cc, dc, med(ceiling, cores), med(daemon, cores), runtime.NumCPU())
 }
 
 // BenchmarkE2ECore compares lockstep run on core NATS with a bare
@@ -291,7 +346,7 @@ func BenchmarkE2ECore(b *testing.B) {
 	pub := ns.connect(b)
 	for _, v := range benchStoreVariants {
 		b.Run(v.name, func(b *testing.B) {
-			var ceiling, daemon []float64
+			var ceiling, daemon []roundResult
 			round := 0
 			for b.Loop() {
 				round++
@@ -304,7 +359,7 @@ func BenchmarkE2ECore(b *testing.B) {
 }
 
 // coreBare times a subscriber that counts messages.
-func coreBare(b *testing.B, ns *e2eNATS, pub *nats.Conn, msgs []benchMsg) float64 {
+func coreBare(b *testing.B, ns *e2eNATS, pub *nats.Conn, msgs []benchMsg) roundResult {
 	b.Helper()
 	nc := ns.connect(b)
 	defer nc.Close()
@@ -331,10 +386,12 @@ func coreBare(b *testing.B, ns *e2eNATS, pub *nats.Conn, msgs []benchMsg) float6
 	if err := nc.Flush(); err != nil {
 		b.Fatal(err)
 	}
+	meter := startCPU()
 	if err := publishCore(pub, msgs); err != nil {
 		b.Fatal(err)
 	}
 	got, err := pollCount(newSpan(len(msgs)), 10*time.Millisecond, func() (int64, error) { return n.Load(), nil }, 2*time.Second, 60*time.Second)
+	res := meter.result(0, len(msgs))
 	if err != nil {
 		b.Fatalf("bare subscriber: %v", err)
 	}
@@ -343,11 +400,12 @@ func coreBare(b *testing.B, ns *e2eNATS, pub *nats.Conn, msgs []benchMsg) float6
 	if got != int64(len(msgs)) {
 		b.Fatalf("bare subscriber got %d of %d", got, len(msgs))
 	}
-	return s.rate()
+	res.rate = s.rate()
+	return res
 }
 
 // coreDaemon times lockstep run --source core on the same messages.
-func coreDaemon(b *testing.B, ns *e2eNATS, pub *nats.Conn, msgs []benchMsg, config string, round int) float64 {
+func coreDaemon(b *testing.B, ns *e2eNATS, pub *nats.Conn, msgs []benchMsg, config string, round int) roundResult {
 	b.Helper()
 	dir := b.TempDir()
 	d := startInProc(b, dir, append(benchConfig(b, dir, config),
@@ -355,9 +413,11 @@ func coreDaemon(b *testing.B, ns *e2eNATS, pub *nats.Conn, msgs []benchMsg, conf
 		"--bucket", "1m", "--window", "30m", "--evaluate-every", "10s")...)
 	defer d.stop(b)
 	done := make(chan error, 1)
+	meter := startCPU()
 	go func() { done <- publishCore(pub, msgs) }()
 	s := newSpan(len(msgs))
 	_, err := pollCount(s, 25*time.Millisecond, func() (int64, error) { return d.metric(`lockstep_messages_total{result="applied"}`) }, 2*time.Second, 60*time.Second)
+	res := meter.result(0, len(msgs))
 	if perr := <-done; perr != nil {
 		b.Fatal(perr)
 	}
@@ -365,7 +425,8 @@ func coreDaemon(b *testing.B, ns *e2eNATS, pub *nats.Conn, msgs []benchMsg, conf
 		b.Fatalf("daemon, round %d: %v", round, err)
 	}
 	d.checkAllAdded(b, len(msgs))
-	return s.rate()
+	res.rate = s.rate()
+	return res
 }
 
 // BenchmarkE2EJetStream compares lockstep run on a JetStream durable
@@ -381,7 +442,7 @@ func BenchmarkE2EJetStream(b *testing.B) {
 	round := 0
 	for _, v := range benchStoreVariants {
 		b.Run(v.name, func(b *testing.B) {
-			var ceiling, daemon []float64
+			var ceiling, daemon []roundResult
 			for b.Loop() {
 				round++ // consumer names stay unique across the variants
 				ceiling = append(ceiling, jsAckNone(b, nc, round))
@@ -393,7 +454,7 @@ func BenchmarkE2EJetStream(b *testing.B) {
 }
 
 // jsAckNone times an ack-none pull consumer that counts messages.
-func jsAckNone(b *testing.B, nc *nats.Conn, round int) float64 {
+func jsAckNone(b *testing.B, nc *nats.Conn, round int) roundResult {
 	b.Helper()
 	js, err := jetstream.New(nc)
 	if err != nil {
@@ -412,6 +473,7 @@ func jsAckNone(b *testing.B, nc *nats.Conn, round int) float64 {
 	s := newSpan(benchJSMessages)
 	var n, tLo, tHi atomic.Int64
 	lo, hi := s.lo, s.hi
+	meter := startCPU()
 	cc, err := cons.Consume(func(jetstream.Msg) {
 		c := n.Add(1)
 		if c == lo {
@@ -425,6 +487,7 @@ func jsAckNone(b *testing.B, nc *nats.Conn, round int) float64 {
 		b.Fatal(err)
 	}
 	got, err := pollCount(newSpan(benchJSMessages), 10*time.Millisecond, func() (int64, error) { return n.Load(), nil }, 2*time.Second, 60*time.Second)
+	res := meter.result(0, benchJSMessages)
 	cc.Stop()
 	if err != nil {
 		b.Fatalf("ack-none consumer: %v", err)
@@ -433,16 +496,20 @@ func jsAckNone(b *testing.B, nc *nats.Conn, round int) float64 {
 		b.Fatalf("ack-none consumer got %d of %d", got, benchJSMessages)
 	}
 	s.tLo, s.tHi = time.Unix(0, tLo.Load()), time.Unix(0, tHi.Load())
-	return s.rate()
+	res.rate = s.rate()
+	return res
 }
 
 // jsDaemon times lockstep run on a new durable consumer with a new store,
 // by the consumer's ack floor: the daemon acks after the commit.
-func jsDaemon(b *testing.B, ns *e2eNATS, nc *nats.Conn, config string, round int) float64 {
+func jsDaemon(b *testing.B, ns *e2eNATS, nc *nats.Conn, config string, round int) roundResult {
 	b.Helper()
 	durable := fmt.Sprintf("lockstep-%d", round)
 	s := newSpan(benchJSMessages)
 	dir := b.TempDir()
+	// The meter includes the daemon's start (creating its consumer and an
+	// empty store: a few milliseconds), which consumes already.
+	meter := startCPU()
 	d := startInProc(b, dir, append(benchConfig(b, dir, config),
 		"--nats", ns.url(), "--source", "jetstream", "--stream", benchStream, "--consumer", durable,
 		"--bucket", "1m", "--window", "30m", "--evaluate-every", "10s")...)
@@ -454,9 +521,11 @@ func jsDaemon(b *testing.B, ns *e2eNATS, nc *nats.Conn, config string, round int
 		}
 		return int64(p.AckFloor), err
 	}, 5*time.Second, 120*time.Second)
+	res := meter.result(0, benchJSMessages)
 	if err != nil {
 		b.Fatalf("daemon, round %d: %v", round, err)
 	}
 	d.checkAllAdded(b, benchJSMessages)
-	return s.rate()
+	res.rate = s.rate()
+	return res
 }
