@@ -160,14 +160,15 @@ type Rule struct {
 	ClearAfter int
 	// Test is the test of equal means of the window F detectors. Default auto.
 	Test TestChoice
-	// Windows are the window F detectors. Default 1 min (share 0.04: quick
-	// for large shifts) and 30 min (share 0.02; its pooled SD also scales
+	// Windows are the window F detectors. Default 1 min (share 0.01: quick
+	// for large shifts) and 30 min (share 0.01; its pooled SD also scales
 	// the CUSUMs).
 	Windows []WindowF
-	// CUSUMs are the between-group CUSUM detectors. Default k = 0.85 and
-	// k = 0.35, share 0.47 each: tuned (k = half the contrast's shift in
-	// standard errors) for shifts of 0.25 and 0.1 within-group SD at 60
-	// values per group and evaluation.
+	// CUSUMs are the between-group CUSUM detectors. Default k = 0.85
+	// (share 0.58) and k = 0.35 (share 0.40): tuned (k = half the
+	// contrast's shift in standard errors) for shifts of 0.25 and 0.1
+	// within-group SD at 60 values per group and evaluation; the shares
+	// were chosen with `lockstep calibrate` (see the README).
 	CUSUMs []ContrastCUSUM
 	// Spread is the spread-diverges condition.
 	Spread SpreadRule
@@ -193,12 +194,12 @@ func DefaultRule() Rule {
 		ClearAfter: 5,
 		Test:       TestAuto,
 		Windows: []WindowF{
-			{Length: time.Minute, Share: 0.04},
-			{Length: 30 * time.Minute, Share: 0.02},
+			{Length: time.Minute, Share: 0.01},
+			{Length: 30 * time.Minute, Share: 0.01},
 		},
 		CUSUMs: []ContrastCUSUM{
-			{K: 0.85, Share: 0.47},
-			{K: 0.35, Share: 0.47},
+			{K: 0.85, Share: 0.58},
+			{K: 0.35, Share: 0.40},
 		},
 		Spread:      SpreadRule{Alpha: 1e-4, ClearAlpha: 0.01, MinRatio: 1.2},
 		SilentAfter: 10 * time.Minute,

@@ -66,8 +66,8 @@ Grid and detectors:
   --alphas LIST       significance levels, the means detectors' budget per
                       evaluation (default 2e-5,4e-5,8e-5)
   --confirms LIST     confirmation counts (default 1,2)
-  --windows LIST      window F detectors as length:share (default 1m:0.04,30m:0.02)
-  --cusums LIST       contrast CUSUMs as k:share (default 0.85:0.47,0.35:0.47)
+  --windows LIST      window F detectors as length:share (default 1m:0.01,30m:0.01)
+  --cusums LIST       contrast CUSUMs as k:share (default 0.85:0.58,0.35:0.40)
   --test T            auto, classic or welch (default auto)
 
 Measurement:
