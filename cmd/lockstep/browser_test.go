@@ -116,7 +116,7 @@ func TestBrowserDemo(t *testing.T) {
 	); err != nil {
 		t.Fatalf("waiting for the raised fill-weight tile: %v", err)
 	}
-	tileText, err := chromedp.Run(ctx, chromedp.Text(tile))
+	tileText, err := chromedp.Run(ctx, textJS(tile))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -141,10 +141,10 @@ func TestBrowserDemo(t *testing.T) {
 	); err != nil {
 		t.Fatalf("acknowledging alert %s in the detail: %v", id, err)
 	}
-	if head, err := chromedp.Run(ctx, chromedp.Text(chromedp.CSS(`#view-detail .detail-head h1`))); err != nil || head != "fill-weight" {
+	if head, err := chromedp.Run(ctx, textJS(chromedp.CSS(`#view-detail .detail-head h1`))); err != nil || head != "fill-weight" {
 		t.Errorf("detail heading %q, %v", head, err)
 	}
-	rowText, err := chromedp.Run(ctx, chromedp.Text(row))
+	rowText, err := chromedp.Run(ctx, textJS(row))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -172,6 +172,13 @@ func clickJS(sel chromedp.CSS) chromedp.Action[chromedp.Void] {
 			return err
 		}),
 	)
+}
+
+// textJS reads the text of the element sel selects in one script, so that
+// a live update that replaces the element between finding it and reading
+// it (chromedp.Text takes two calls) cannot fail the read.
+func textJS(sel chromedp.CSS) chromedp.Action[string] {
+	return chromedp.Evaluate[string](fmt.Sprintf(`(() => { const e = document.querySelector(%q); return e ? e.innerText : ""; })()`, string(sel)))
 }
 
 // hostile is a name that would run a script if it were put into the page
@@ -229,7 +236,7 @@ func TestBrowserHostileNames(t *testing.T) {
 	if err := chromedp.Do(ctx, chromedp.WaitVisible(tile+`[data-state="raised"]`)); err != nil {
 		t.Fatalf("the live alert: %v", err)
 	}
-	tileText, err := chromedp.Run(ctx, chromedp.Text(tile))
+	tileText, err := chromedp.Run(ctx, textJS(tile))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -240,7 +247,7 @@ func TestBrowserHostileNames(t *testing.T) {
 	); err != nil {
 		t.Fatalf("the detail of the hostile characteristic: %v", err)
 	}
-	h1, err := chromedp.Run(ctx, chromedp.Text(chromedp.CSS(`#view-detail .detail-head h1`)))
+	h1, err := chromedp.Run(ctx, textJS(chromedp.CSS(`#view-detail .detail-head h1`)))
 	if err != nil {
 		t.Fatal(err)
 	}
