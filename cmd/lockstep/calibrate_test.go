@@ -5,10 +5,12 @@ import (
 	"errors"
 	"math"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 	"time"
 
+	"github.com/lockstep-project/lockstep/alert"
 	"github.com/lockstep-project/lockstep/stats"
 	"github.com/lockstep-project/lockstep/store"
 )
@@ -149,5 +151,33 @@ func TestCalibrateFromStore(t *testing.T) {
 	code, out, errOut := runCmd(t, append(quickCalib, "--store", path, "--characteristic", "fill-weight")...)
 	if code != 0 || !strings.Contains(out, "2 groups at 1,0.5 values/s, SD 2") {
 		t.Errorf("exit %d, stderr %q, output:\n%s", code, errOut, out)
+	}
+}
+
+// TestCalibrateUsageDefaults: the defaults the help text gives for
+// --windows and --cusums are the default rule's, so the help cannot fall
+// behind a change of alert.DefaultRule.
+func TestCalibrateUsageDefaults(t *testing.T) {
+	usage := (&CalibrateCommand{}).Usage()
+	def := alert.DefaultRule()
+	shown := func(flag string) string {
+		for line := range strings.SplitSeq(usage, "\n") {
+			if strings.HasPrefix(strings.TrimSpace(line), flag+" ") {
+				_, rest, ok := strings.Cut(line, "(default ")
+				if v, _, ok2 := strings.Cut(rest, ")"); ok && ok2 {
+					return v
+				}
+			}
+		}
+		t.Fatalf("no default for %s in the help", flag)
+		return ""
+	}
+	ws, err := parseWindows(shown("--windows"))
+	if err != nil || !slices.Equal(ws, def.Windows) {
+		t.Errorf("help's --windows default %v (%v), the rule's %v", ws, err, def.Windows)
+	}
+	cs, err := parseCUSUMs(shown("--cusums"))
+	if err != nil || !slices.Equal(cs, def.CUSUMs) {
+		t.Errorf("help's --cusums default %v (%v), the rule's %v", cs, err, def.CUSUMs)
 	}
 }

@@ -28,9 +28,10 @@ package main
 // the rounds), and beside them the CPU this process (NATS server,
 // publisher and consumer together) spent per message in each kind of
 // round, and how many cores it kept busy: when that is the machine's CPU
-// count, the ratio is set by CPU per message, not by any one goroutine. The daemon's progress is read by polling (its /metrics for
-// core, the consumer's ack floor for JetStream) with the crossing times
-// interpolated between polls; the ceilings stamp their own.
+// count, the ratio is set by CPU per message, not by any one goroutine.
+// The daemon's progress is read by polling (its /metrics for core, the
+// consumer's ack floor for JetStream) with the crossing times interpolated
+// between polls; the ceilings stamp their own.
 
 import (
 	"bufio"
@@ -283,10 +284,10 @@ func startCPU() cpuMeter {
 	return cpuMeter{cpu0: c, t0: time.Now(), ok: ok}
 }
 
-// result completes r with the CPU used since the meter started, over n
-// messages.
-func (m cpuMeter) result(rate float64, n int) roundResult {
-	r := roundResult{rate: rate}
+// result returns the CPU used since the meter started, over n messages;
+// the caller sets the rate.
+func (m cpuMeter) result(n int) roundResult {
+	var r roundResult
 	c, ok := processCPU()
 	wall := time.Since(m.t0)
 	if m.ok && ok && n > 0 && wall > 0 {
@@ -391,7 +392,7 @@ func coreBare(b *testing.B, ns *e2eNATS, pub *nats.Conn, msgs []benchMsg) roundR
 		b.Fatal(err)
 	}
 	got, err := pollCount(newSpan(len(msgs)), 10*time.Millisecond, func() (int64, error) { return n.Load(), nil }, 2*time.Second, 60*time.Second)
-	res := meter.result(0, len(msgs))
+	res := meter.result(len(msgs))
 	if err != nil {
 		b.Fatalf("bare subscriber: %v", err)
 	}
@@ -417,7 +418,7 @@ func coreDaemon(b *testing.B, ns *e2eNATS, pub *nats.Conn, msgs []benchMsg, conf
 	go func() { done <- publishCore(pub, msgs) }()
 	s := newSpan(len(msgs))
 	_, err := pollCount(s, 25*time.Millisecond, func() (int64, error) { return d.metric(`lockstep_messages_total{result="applied"}`) }, 2*time.Second, 60*time.Second)
-	res := meter.result(0, len(msgs))
+	res := meter.result(len(msgs))
 	if perr := <-done; perr != nil {
 		b.Fatal(perr)
 	}
@@ -487,7 +488,7 @@ func jsAckNone(b *testing.B, nc *nats.Conn, round int) roundResult {
 		b.Fatal(err)
 	}
 	got, err := pollCount(newSpan(benchJSMessages), 10*time.Millisecond, func() (int64, error) { return n.Load(), nil }, 2*time.Second, 60*time.Second)
-	res := meter.result(0, benchJSMessages)
+	res := meter.result(benchJSMessages)
 	cc.Stop()
 	if err != nil {
 		b.Fatalf("ack-none consumer: %v", err)
@@ -521,7 +522,7 @@ func jsDaemon(b *testing.B, ns *e2eNATS, nc *nats.Conn, config string, round int
 		}
 		return int64(p.AckFloor), err
 	}, 5*time.Second, 120*time.Second)
-	res := meter.result(0, benchJSMessages)
+	res := meter.result(benchJSMessages)
 	if err != nil {
 		b.Fatalf("daemon, round %d: %v", round, err)
 	}
